@@ -1,0 +1,1 @@
+"""Tidemap: a diffusion-geometry map of a text archive, served over HTTP."""

@@ -1,0 +1,34 @@
+"""The FastAPI application, built from explicit settings (no globals)."""
+
+from __future__ import annotations
+
+from fastapi import FastAPI
+from sqlalchemy import Engine
+
+from service.api.errors import install_error_handlers
+from service.api.routes import collections, documents, health
+from service.config import Settings
+from service.pipeline.keys import KeyVerifier
+from service.storage.schema import require_current
+from service.storage.session import make_engine, make_session_factory
+
+
+def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
+    """Build the app. Refuses (SchemaMismatchError) a database whose schema is not current."""
+    engine = engine or make_engine(settings.database_url)
+    require_current(engine)
+    app = FastAPI(
+        title="Tidemap",
+        version="1",
+        summary="A diffusion-geometry map of a text archive.",
+        description="Authenticate with `Authorization: Bearer <key>` (see `tidemap keys create`).",
+    )
+    app.state.settings = settings
+    app.state.engine = engine
+    app.state.session_factory = make_session_factory(engine)
+    app.state.key_verifier = KeyVerifier(settings.auth_cache_seconds)
+    install_error_handlers(app)
+    app.include_router(health.router)
+    app.include_router(collections.router)
+    app.include_router(documents.router)
+    return app

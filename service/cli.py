@@ -1,0 +1,435 @@
+"""The ``tidemap`` command: the composition root that reads settings and wires the layers.
+
+Exit codes: 0 success; 1 a command that failed (or an ingest with rejected documents);
+2 a usage error or a database whose schema does not match this code; 130 interrupted.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import time
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any
+
+from pydantic import ValidationError
+from sqlalchemy import Engine, inspect
+from sqlalchemy.engine import make_url
+from sqlalchemy.exc import OperationalError
+from sqlalchemy.orm import Session
+from tqdm import tqdm
+
+from service.config import Settings, load_settings
+from service.demo.archive import articles_as_records, generate_archive
+from service.errors import NotFoundError, SchemaMismatchError, TidemapError
+from service.pipeline.collections import create_collection, get_collection, list_collections
+from service.pipeline.documents import BatchSummary, upsert_batch
+from service.pipeline.ingest_files import describe_rejections, ingest_source, open_source
+from service.pipeline.keys import create_key, list_keys, revoke_key
+from service.storage.schema import require_current, schema_status, upgrade
+from service.storage.session import make_engine, make_session_factory
+
+DEMO_DATABASE = "sqlite:///./tidemap-demo.db"
+DEMO_COLLECTION = "harrowvale-herald"  # the invented newspaper of service/demo
+DEMO_KEY_NAMES = ("demo-admin", "demo-read")  # f"demo-{scope}"
+MAX_LISTED_REJECTIONS = 20
+
+
+def _shown(url: str) -> str:
+    return make_url(url).render_as_string(hide_password=True)
+
+
+def prepare_schema(engine: Engine, *, auto_upgrade: bool) -> None:
+    """Leave a current schema alone; upgrade a fresh SQLite file (no tables at all) or,
+    with ``auto_upgrade``, any database that is behind; else raise SchemaMismatchError."""
+    status = schema_status(engine)
+    if status.ok:
+        return
+    fresh_sqlite = engine.dialect.name == "sqlite" and not inspect(engine).get_table_names()
+    if status.state == "behind" and (auto_upgrade or fresh_sqlite):
+        upgrade(engine)
+        return
+    require_current(engine)
+
+
+@contextmanager
+def _database(settings: Settings, *, prepare: bool = True) -> Iterator[Engine]:
+    """An engine for the command's duration (schema checked unless ``prepare`` is false)."""
+    engine = make_engine(settings.database_url)
+    try:
+        if prepare:
+            prepare_schema(engine, auto_upgrade=settings.auto_upgrade)
+        yield engine
+    finally:
+        engine.dispose()
+
+
+@contextmanager
+def _session(settings: Settings) -> Iterator[Session]:
+    with _database(settings) as engine, make_session_factory(engine)() as session:
+        yield session
+
+
+def _table(headers: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
+    cells = [list(headers)] + [["" if v is None else str(v) for v in row] for row in rows]
+    widths = [max(len(row[i]) for row in cells) for i in range(len(headers))]
+    return "\n".join(
+        "  ".join(v.ljust(w) for v, w in zip(row, widths, strict=True)).rstrip() for row in cells
+    )
+
+
+# --- serve -----------------------------------------------------------------------------
+
+
+def cmd_serve(args: argparse.Namespace) -> int:
+    if args.workers < 1:
+        raise argparse.ArgumentTypeError(f"--workers must be at least 1, got {args.workers}")
+    overrides = {k: v for k, v in (("host", args.host), ("port", args.port)) if v is not None}
+    settings = load_settings(**overrides)
+    import uvicorn  # the web stack is imported only by the commands that serve
+
+    from service.api.app import create_app
+
+    log_level = settings.log_level.lower()
+    with _database(settings) as engine:  # the schema is checked before anything starts
+        if args.workers == 1:
+            app = create_app(settings, engine)
+            uvicorn.run(app, host=settings.host, port=settings.port, log_level=log_level)
+            return 0
+    # Each worker process builds its own app and engine from the same environment.
+    uvicorn.run(
+        "service.api.factory:app_from_environment",
+        factory=True,
+        host=settings.host,
+        port=settings.port,
+        workers=args.workers,
+        log_level=log_level,
+    )
+    return 0
+
+
+# --- db --------------------------------------------------------------------------------
+
+
+def cmd_db_upgrade(args: argparse.Namespace) -> int:
+    settings = load_settings()
+    with _database(settings, prepare=False) as engine:
+        before = schema_status(engine)
+        if before.state == "ahead":
+            require_current(engine)  # raises: upgrading cannot go backwards
+        upgrade(engine, args.revision)
+        after = schema_status(engine)
+    print(
+        f"{_shown(settings.database_url)}: schema {before.current or 'empty'} -> "
+        f"{after.current} (head {after.head})"
+    )
+    return 0
+
+
+def cmd_db_status(args: argparse.Namespace) -> int:
+    settings = load_settings()
+    with _database(settings, prepare=False) as engine:
+        status = schema_status(engine)
+    print(f"database: {_shown(settings.database_url)}")
+    print(f"current:  {status.current or '(empty)'}")
+    print(f"head:     {status.head}")
+    print(f"state:    {status.state}")
+    if status.state == "behind":
+        print("run `tidemap db upgrade` to bring it up to date", file=sys.stderr)
+    return 1 if args.check and not status.ok else 0
+
+
+# --- keys ------------------------------------------------------------------------------
+
+
+def cmd_keys_create(args: argparse.Namespace) -> int:
+    with _session(load_settings()) as session:
+        raw, info = create_key(session, args.name, args.scope)
+    print(raw)  # alone on stdout, so `KEY=$(tidemap keys create ...)` works
+    print(
+        f"created key {info.id} {info.name!r} (scope {info.scope}, prefix {info.prefix}). "
+        "The key is not stored and cannot be shown again: copy it now.",
+        file=sys.stderr,
+    )
+    return 0
+
+
+def cmd_keys_list(args: argparse.Namespace) -> int:
+    with _session(load_settings()) as session:
+        keys = list_keys(session)
+    rows = [(k.id, k.name, k.prefix, k.scope, k.created_at, k.revoked_at or "-") for k in keys]
+    print(_table(("id", "name", "prefix", "scope", "created", "revoked"), rows))
+    return 0
+
+
+def cmd_keys_revoke(args: argparse.Namespace) -> int:
+    with _session(load_settings()) as session:
+        info = revoke_key(session, args.id)
+    print(f"key {info.id} {info.name!r} revoked at {info.revoked_at}")
+    return 0
+
+
+# --- collections -----------------------------------------------------------------------
+
+
+def parse_setting(text: str, into: dict[str, Any]) -> None:
+    """Add ``key=value`` to ``into``; the value is JSON if it parses, else a string, and a
+    dotted key nests (``reindex.every_seconds=3600``)."""
+    key, sep, value = text.partition("=")
+    if not sep or not key.strip():
+        raise argparse.ArgumentTypeError(f"--setting {text!r} is not key=value")
+    try:
+        parsed: Any = json.loads(value)
+    except json.JSONDecodeError:
+        parsed = value
+    *parents, leaf = key.strip().split(".")
+    node = into
+    for part in parents:
+        node = node.setdefault(part, {})
+    node[leaf] = parsed
+
+
+def cmd_collections_create(args: argparse.Namespace) -> int:
+    settings: dict[str, Any] = {}
+    for text in args.setting:
+        parse_setting(text, settings)
+    with _session(load_settings()) as session:
+        view = create_collection(session, args.name, settings)
+    print(json.dumps(view, indent=2))
+    return 0
+
+
+def cmd_collections_list(args: argparse.Namespace) -> int:
+    with _session(load_settings()) as session:
+        views = list_collections(session)
+    rows = [(v["name"], v["documents"], v["terms"], v["changes"], v["created_at"]) for v in views]
+    print(_table(("name", "documents", "terms", "changes", "created"), rows))
+    return 0
+
+
+# --- ingest ----------------------------------------------------------------------------
+
+
+def _with_progress(
+    items: Iterator[Any], total: int | None, quiet: bool, label: str
+) -> Iterator[Any]:
+    disable = quiet or not sys.stderr.isatty()
+    with tqdm(total=total, unit="doc", desc=label, file=sys.stderr, disable=disable) as bar:
+        for item in items:
+            yield item
+            bar.update(1)
+
+
+def print_summary(summary: BatchSummary, where: Callable[[int], str], head: str) -> None:
+    print(
+        f"{head}: {summary.inserted} inserted, {summary.updated} updated, "
+        f"{summary.unchanged} unchanged, {summary.rejected} rejected"
+    )
+    for line in describe_rejections(summary, where, limit=MAX_LISTED_REJECTIONS):
+        print(f"  {line}")
+
+
+def cmd_ingest(args: argparse.Namespace) -> int:
+    settings = load_settings()
+    source = open_source(args.path, args.format)
+    started = time.perf_counter()
+    with _session(settings) as session:
+        summary = ingest_source(
+            session,
+            args.collection,
+            source,
+            create=args.create,
+            max_text_bytes=settings.max_text_bytes,
+            chunk_size=settings.ndjson_chunk_size,
+            wrap=lambda items: _with_progress(items, source.total, args.quiet, args.collection),
+        )
+    seconds = time.perf_counter() - started
+    head = f"{args.path} -> {args.collection!r} ({source.format}, {seconds:.1f} s)"
+    print_summary(summary, source.where, head)
+    return 1 if summary.rejected else 0
+
+
+# --- demo ------------------------------------------------------------------------------
+
+
+def build_demo_index(engine: Engine, collection: str) -> None:
+    """Placeholder: a later issue builds the demo collection's index here and opens the
+    map page once the server answers. Loading the documents is all that happens now."""
+
+
+def load_demo(engine: Engine, settings: Settings) -> tuple[Any, dict[str, str]]:
+    """Upsert the invented archive into the demo collection (created if missing) and make
+    fresh demo keys, revoking earlier ones (a raw key cannot be shown twice)."""
+    records = articles_as_records(generate_archive())
+    with make_session_factory(engine)() as session:
+        try:
+            get_collection(session, DEMO_COLLECTION)
+        except NotFoundError:
+            create_collection(session, DEMO_COLLECTION)
+        summary = upsert_batch(
+            session,
+            DEMO_COLLECTION,
+            enumerate(records, start=1),
+            max_text_bytes=settings.max_text_bytes,
+            chunk_size=settings.ndjson_chunk_size,
+            report_all=False,
+        )
+        for old in list_keys(session):
+            if old.name in DEMO_KEY_NAMES and old.revoked_at is None:
+                revoke_key(session, old.id)
+        keys = {
+            scope: create_key(session, f"demo-{scope}", scope)[0] for scope in ("admin", "read")
+        }
+    return summary, keys
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    # The demo database is the demo's own: bring it up to date whatever its state.
+    settings = load_settings(
+        database_url=args.database, host="127.0.0.1", port=args.port, auto_upgrade=True
+    )
+    with _database(settings) as engine:
+        summary, keys = load_demo(engine, settings)
+        print_summary(summary, lambda i: f"article {i}", f"demo archive -> {DEMO_COLLECTION!r}")
+        build_demo_index(engine, DEMO_COLLECTION)
+        url = f"http://127.0.0.1:{settings.port}"
+        print(f"database:   {_shown(settings.database_url)}")
+        print(f"collection: {DEMO_COLLECTION}")
+        print(f"admin key:  {keys['admin']}")
+        print(f"read key:   {keys['read']}")
+        print("(keys are not stored and cannot be shown again; earlier demo keys are revoked)")
+        print(f"API:        {url}/docs")
+        print(f"try:        curl -H 'Authorization: Bearer {keys['read']}' {url}/v1/collections")
+        if args.no_serve:
+            return 0
+        import uvicorn
+
+        from service.api.app import create_app
+
+        uvicorn.run(create_app(settings, engine), host="127.0.0.1", port=settings.port)
+    return 0
+
+
+# --- bench -----------------------------------------------------------------------------
+
+
+def cmd_bench_ingest(args: argparse.Namespace) -> int:
+    from service.bench.ingest import format_report, run_ingest_benchmark
+
+    report = run_ingest_benchmark(
+        n_docs=args.docs, database_url=args.database, seed=args.seed, progress=print_progress
+    )
+    print(json.dumps(report, indent=2) if args.json else format_report(report))
+    return 0
+
+
+def print_progress(message: str) -> None:
+    print(message, file=sys.stderr, flush=True)
+
+
+# --- the parser ------------------------------------------------------------------------
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="tidemap",
+        description="A map of what a text archive is about. Settings come from TIDEMAP_* "
+        "environment variables (TIDEMAP_DATABASE_URL, default sqlite:///./tidemap.db).",
+        epilog="Exit codes: 0 ok, 1 failed or documents rejected, 2 usage or schema mismatch.",
+    )
+    sub = parser.add_subparsers(title="commands", metavar="COMMAND")
+
+    def command(parent: Any, name: str, handler: Callable[..., int], text: str) -> Any:
+        p = parent.add_parser(name, help=text, description=text)
+        p.set_defaults(handler=handler)
+        return p
+
+    def group(name: str, text: str) -> Any:
+        p = sub.add_parser(name, help=text, description=text)
+        p.set_defaults(handler=lambda _args, p=p: (p.print_help(), 2)[1])
+        return p.add_subparsers(title="commands", metavar="COMMAND")
+
+    p = command(sub, "serve", cmd_serve, "Run the HTTP API (uvicorn).")
+    p.add_argument("--host", help="interface to listen on (default TIDEMAP_HOST, 127.0.0.1)")
+    p.add_argument("--port", type=int, help="port (default TIDEMAP_PORT, 8000)")
+    p.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
+
+    db = group("db", "Database schema: status and upgrades.")
+    p = command(db, "upgrade", cmd_db_upgrade, "Upgrade the schema (to the newest by default).")
+    p.add_argument("--revision", default="head", help="target revision (default head)")
+    p = command(db, "status", cmd_db_status, "Show the schema revision: current, head, state.")
+    p.add_argument("--check", action="store_true", help="exit 1 unless the schema is current")
+
+    keys = group("keys", "API keys: create (shown once), list, revoke.")
+    p = command(keys, "create", cmd_keys_create, "Create a key and print it once.")
+    p.add_argument("--name", required=True, help="what the key is for")
+    p.add_argument("--scope", required=True, choices=("read", "write", "admin"))
+    command(keys, "list", cmd_keys_list, "List keys (never the keys themselves).")
+    p = command(keys, "revoke", cmd_keys_revoke, "Revoke a key by its id.")
+    p.add_argument("id", type=int, help="the key's id (see `tidemap keys list`)")
+
+    colls = group("collections", "Collections of documents.")
+    p = command(colls, "create", cmd_collections_create, "Create a collection.")
+    p.add_argument("name", help="1-64 characters of a-z, 0-9, _ and -")
+    p.add_argument(
+        "--setting",
+        action="append",
+        default=[],
+        metavar="KEY=VALUE",
+        help="a collection setting (value as JSON, else text; dotted keys nest), repeatable",
+    )
+    command(colls, "list", cmd_collections_list, "List collections.")
+
+    p = command(sub, "ingest", cmd_ingest, "Load documents from a JSONL or CSV file or a folder.")
+    p.add_argument("path", help="a .jsonl/.csv file, or a folder of .txt/.md files")
+    p.add_argument("--collection", required=True, help="the target collection")
+    p.add_argument("--create", action="store_true", help="create the collection if missing")
+    p.add_argument("--format", default="auto", choices=("auto", "jsonl", "csv", "text"))
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+    p = command(sub, "demo", cmd_demo, "Load an invented archive and serve it on 127.0.0.1.")
+    p.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    p.add_argument("--no-serve", action="store_true", help="load and print the keys, then exit")
+    p.add_argument("--database", default=DEMO_DATABASE, help=f"default {DEMO_DATABASE}")
+
+    bench = group("bench", "Benchmarks (speed, not quality).")
+    p = command(bench, "ingest", cmd_bench_ingest, "Time ingestion through a real HTTP server.")
+    p.add_argument("--docs", type=int, default=20_000, help="documents per path (default 20000)")
+    p.add_argument("--database", help="SQLAlchemy URL (default a temporary SQLite file)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    handler = getattr(args, "handler", None)
+    if handler is None:
+        parser.print_help()
+        return 2
+    try:
+        return int(handler(args))
+    except SchemaMismatchError as exc:
+        print(f"tidemap: {exc.message}", file=sys.stderr)
+        return 2
+    except TidemapError as exc:
+        print(f"tidemap: error: {exc.message}", file=sys.stderr)
+        return 1
+    except argparse.ArgumentTypeError as exc:
+        print(f"tidemap: error: {exc}", file=sys.stderr)
+        return 2
+    except ValidationError as exc:
+        print(f"tidemap: invalid TIDEMAP_* setting: {exc}", file=sys.stderr)
+        return 2
+    except OperationalError as exc:
+        print(f"tidemap: error: the database cannot be reached: {exc.orig}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

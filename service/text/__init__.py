@@ -1,0 +1,1 @@
+"""Pure text handling: tokenisation, stop words, stemming, term weighting."""
