@@ -23,7 +23,7 @@ from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.document_input import DocumentInput, check_external_id, parse_document
 from service.storage import repository as repo
 from service.storage.codecs import decode_counts, encode_counts
-from service.storage.terms import apply_df_deltas, term_ids
+from service.storage.terms import add_terms, apply_df_deltas
 from service.storage.types import utcnow
 from service.text.tokenize import Tokenizer, make_tokenizer
 
@@ -72,7 +72,9 @@ def _upsert_valid(
             statuses[index] = UNCHANGED
             continue
         pending.append((index, doc, digest, tokenizer.count(f"{doc.title}\n{doc.text}")))
-    ids = term_ids(conn, locked.id, {t for *_, counts in pending for t in counts})
+    # Every new version adds one to each of its terms; replaced versions take one away.
+    increments = Counter(t for *_, counts in pending for t in counts)
+    ids = add_terms(conn, locked.id, increments)
     deltas: Counter[int] = Counter()
     inserts: list[dict[str, Any]] = []
     updates: list[dict[str, Any]] = []
@@ -89,7 +91,6 @@ def _upsert_valid(
             "n_terms": len(pairs),
             "updated_at": now,
         }
-        deltas.update(new_ids)
         previous = stored.get(doc.external_id)
         if previous is None:
             inserts.append(
