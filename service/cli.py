@@ -17,7 +17,7 @@ from typing import Any
 from pydantic import ValidationError
 from sqlalchemy import Engine, inspect
 from sqlalchemy.engine import make_url
-from sqlalchemy.exc import OperationalError
+from sqlalchemy.exc import ArgumentError, OperationalError
 from sqlalchemy.orm import Session
 from tqdm import tqdm
 
@@ -26,14 +26,14 @@ from service.demo.archive import articles_as_records, generate_archive
 from service.errors import NotFoundError, SchemaMismatchError, TidemapError
 from service.pipeline.collections import create_collection, get_collection, list_collections
 from service.pipeline.documents import BatchSummary, upsert_batch
-from service.pipeline.ingest_files import describe_rejections, ingest_source, open_source
+from service.pipeline.ingest_files import describe_rejections, ingest_source, open_source, reason
 from service.pipeline.keys import create_key, list_keys, revoke_key
 from service.storage.schema import require_current, schema_status, upgrade
 from service.storage.session import make_engine, make_session_factory
 
 DEMO_DATABASE = "sqlite:///./tidemap-demo.db"
 DEMO_COLLECTION = "harrowvale-herald"  # the invented newspaper of service/demo
-DEMO_KEY_NAMES = ("demo-admin", "demo-read")  # f"demo-{scope}"
+DEMO_KEY_SCOPES = ("admin", "read")  # keys named demo-<scope>
 MAX_LISTED_REJECTIONS = 20
 
 
@@ -84,8 +84,6 @@ def _table(headers: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
 
 
 def cmd_serve(args: argparse.Namespace) -> int:
-    if args.workers < 1:
-        raise argparse.ArgumentTypeError(f"--workers must be at least 1, got {args.workers}")
     overrides = {k: v for k, v in (("host", args.host), ("port", args.port)) if v is not None}
     settings = load_settings(**overrides)
     import uvicorn  # the web stack is imported only by the commands that serve
@@ -106,6 +104,9 @@ def cmd_serve(args: argparse.Namespace) -> int:
         port=settings.port,
         workers=args.workers,
         log_level=log_level,
+        # A worker imports the whole stack before it answers the supervisor's ping; the
+        # default 5 s is too short on a busy small machine and kills healthy workers.
+        timeout_worker_healthcheck=30,
     )
     return 0
 
@@ -259,7 +260,7 @@ def build_demo_index(engine: Engine, collection: str) -> None:
     map page once the server answers. Loading the documents is all that happens now."""
 
 
-def load_demo(engine: Engine, settings: Settings) -> tuple[Any, dict[str, str]]:
+def load_demo(engine: Engine, settings: Settings) -> tuple[BatchSummary, dict[str, str]]:
     """Upsert the invented archive into the demo collection (created if missing) and make
     fresh demo keys, revoking earlier ones (a raw key cannot be shown twice)."""
     records = articles_as_records(generate_archive())
@@ -276,12 +277,11 @@ def load_demo(engine: Engine, settings: Settings) -> tuple[Any, dict[str, str]]:
             chunk_size=settings.ndjson_chunk_size,
             report_all=False,
         )
+        names = {f"demo-{scope}": scope for scope in DEMO_KEY_SCOPES}
         for old in list_keys(session):
-            if old.name in DEMO_KEY_NAMES and old.revoked_at is None:
+            if old.name in names and old.revoked_at is None:
                 revoke_key(session, old.id)
-        keys = {
-            scope: create_key(session, f"demo-{scope}", scope)[0] for scope in ("admin", "read")
-        }
+        keys = {scope: create_key(session, name, scope)[0] for name, scope in names.items()}
     return summary, keys
 
 
@@ -332,6 +332,20 @@ def print_progress(message: str) -> None:
 # --- the parser ------------------------------------------------------------------------
 
 
+def _positive(text: str) -> int:
+    value = int(text)
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {value}")
+    return value
+
+
+def _port(text: str) -> int:
+    value = int(text)
+    if not 1 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"a port is between 1 and 65535, got {value}")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="tidemap",
@@ -353,8 +367,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command(sub, "serve", cmd_serve, "Run the HTTP API (uvicorn).")
     p.add_argument("--host", help="interface to listen on (default TIDEMAP_HOST, 127.0.0.1)")
-    p.add_argument("--port", type=int, help="port (default TIDEMAP_PORT, 8000)")
-    p.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
+    p.add_argument("--port", type=_port, help="port (default TIDEMAP_PORT, 8000)")
+    p.add_argument("--workers", type=_positive, default=1, help="worker processes (default 1)")
 
     db = group("db", "Database schema: status and upgrades.")
     p = command(db, "upgrade", cmd_db_upgrade, "Upgrade the schema (to the newest by default).")
@@ -383,20 +397,39 @@ def build_parser() -> argparse.ArgumentParser:
     command(colls, "list", cmd_collections_list, "List collections.")
 
     p = command(sub, "ingest", cmd_ingest, "Load documents from a JSONL or CSV file or a folder.")
+    p.epilog = (
+        "JSONL: one document object per line. CSV: a header naming id and text (title and "
+        "published_at optional, other columns go into metadata). Folder: every .txt/.md "
+        "file; the id is the relative path with / as ~, the title its first line. Bad "
+        "lines, rows or files are reported by position and skipped; the exit code is 1 "
+        "when any was rejected."
+    )
     p.add_argument("path", help="a .jsonl/.csv file, or a folder of .txt/.md files")
     p.add_argument("--collection", required=True, help="the target collection")
     p.add_argument("--create", action="store_true", help="create the collection if missing")
-    p.add_argument("--format", default="auto", choices=("auto", "jsonl", "csv", "text"))
+    p.add_argument(
+        "--format",
+        default="auto",
+        choices=("auto", "jsonl", "csv", "text"),
+        help="default: from the file name (.jsonl/.ndjson, .csv/.tsv) or text for a folder",
+    )
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
     p = command(sub, "demo", cmd_demo, "Load an invented archive and serve it on 127.0.0.1.")
-    p.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    p.add_argument("--port", type=_port, default=8000, help="port (default 8000)")
     p.add_argument("--no-serve", action="store_true", help="load and print the keys, then exit")
     p.add_argument("--database", default=DEMO_DATABASE, help=f"default {DEMO_DATABASE}")
 
     bench = group("bench", "Benchmarks (speed, not quality).")
     p = command(bench, "ingest", cmd_bench_ingest, "Time ingestion through a real HTTP server.")
-    p.add_argument("--docs", type=int, default=20_000, help="documents per path (default 20000)")
+    p.epilog = (
+        "Starts uvicorn on 127.0.0.1 against the database and sends invented ~1 KB "
+        "documents as JSON lists and as one NDJSON stream, into the collections bench-json "
+        "and bench-ndjson (replaced if present)."
+    )
+    p.add_argument(
+        "--docs", type=_positive, default=20_000, help="documents per path (default 20000)"
+    )
     p.add_argument("--database", help="SQLAlchemy URL (default a temporary SQLite file)")
     p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
@@ -416,13 +449,16 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"tidemap: {exc.message}", file=sys.stderr)
         return 2
     except TidemapError as exc:
-        print(f"tidemap: error: {exc.message}", file=sys.stderr)
+        print(f"tidemap: error: {reason(exc.to_dict())}", file=sys.stderr)
         return 1
     except argparse.ArgumentTypeError as exc:
         print(f"tidemap: error: {exc}", file=sys.stderr)
         return 2
     except ValidationError as exc:
         print(f"tidemap: invalid TIDEMAP_* setting: {exc}", file=sys.stderr)
+        return 2
+    except ArgumentError as exc:  # an unparsable URL or an unknown driver
+        print(f"tidemap: invalid TIDEMAP_DATABASE_URL: {exc}", file=sys.stderr)
         return 2
     except OperationalError as exc:
         print(f"tidemap: error: the database cannot be reached: {exc.orig}", file=sys.stderr)

@@ -6,6 +6,8 @@ resulting frozen object is passed down explicitly.
 
 from __future__ import annotations
 
+from typing import Literal
+
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
@@ -46,6 +48,43 @@ class Settings(BaseSettings):
         description="Upgrade the schema on start instead of refusing a database that is behind.",
     )
     log_level: str = "info"
+    # --- index builds and workers ---
+    embedded_worker: Literal["auto", "on", "off"] = Field(
+        default="auto",
+        description="Run a build worker thread inside `tidemap serve`: auto = only with "
+        "SQLite (one process is then a whole service), on = always, off = never.",
+    )
+    keep_versions: int = Field(
+        default=3,
+        ge=1,
+        le=100,
+        description="Index versions kept per collection (the active one included); older "
+        "ones are deleted after a newer version is published.",
+    )
+    worker_lease_seconds: float = Field(
+        default=60.0,
+        ge=1.0,
+        description="How long a claimed job stays a worker's without a heartbeat; a killed "
+        "worker's job is retried by another after this.",
+    )
+    worker_poll_seconds: float = Field(
+        default=2.0, gt=0.0, description="How often an idle worker looks for jobs."
+    )
+    build_max_attempts: int = Field(
+        default=3, ge=1, le=100, description="Attempts of a build before it is failed."
+    )
+    build_retry_seconds: float = Field(
+        default=10.0,
+        ge=0.0,
+        description="Back-off before the first retry of a build; doubled for each further "
+        "attempt (at most 10 minutes).",
+    )
+    version_check_seconds: float = Field(
+        default=2.0,
+        ge=0.0,
+        description="How often an API process checks whether a newer index version has "
+        "been published (one cheap SELECT).",
+    )
 
 
 def load_settings(**overrides: object) -> Settings:

@@ -72,3 +72,10 @@ class UnavailableError(TidemapError):
     """A dependency (the database) cannot be reached right now."""
 
     code = "unavailable"
+
+
+class BuildFailedError(TidemapError):
+    """A build cannot succeed with the collection as it is (too few documents, none with
+    terms, settings the geometry refuses): retrying would not help, so it fails at once."""
+
+    code = "build_failed"

@@ -11,15 +11,14 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
-from alembic import command
 from sqlalchemy import Engine, select, text
 
 from service.api.app import create_app
 from service.config import Settings
 from service.pipeline.keys import create_key
+from service.storage import schema
 from service.storage.codecs import decode_many
 from service.storage.models import Collection, Document, Term
-from service.storage.schema import alembic_config
 from service.storage.session import make_engine, make_session_factory
 
 with warnings.catch_warnings():
@@ -162,10 +161,7 @@ def frequency_recount(engine: Engine, collection: str) -> tuple[Counter[str], Co
 
 def downgrade(engine: Engine, revision: str) -> None:
     """Run the migrations down to ``revision`` ("base": nothing left)."""
-    config = alembic_config()
-    with engine.begin() as conn:
-        config.attributes["connection"] = conn
-        command.downgrade(config, revision)
+    schema.downgrade(engine, revision)
 
 
 @contextmanager

@@ -6,9 +6,10 @@ from fastapi import FastAPI
 from sqlalchemy import Engine
 
 from service.api.errors import install_error_handlers
-from service.api.routes import collections, documents, health
+from service.api.routes import builds, collections, documents, health
 from service.config import Settings
 from service.pipeline.keys import KeyVerifier
+from service.pipeline.version_cache import VersionCache
 from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory
 
@@ -27,8 +28,13 @@ def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
     app.state.engine = engine
     app.state.session_factory = make_session_factory(engine)
     app.state.key_verifier = KeyVerifier(settings.auth_cache_seconds)
+    # Loaded index versions, shared by the query routes of this process.
+    app.state.version_cache = VersionCache(
+        app.state.session_factory, check_seconds=settings.version_check_seconds
+    )
     install_error_handlers(app)
     app.include_router(health.router)
     app.include_router(collections.router)
     app.include_router(documents.router)
+    app.include_router(builds.router)
     return app

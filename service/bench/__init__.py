@@ -1,0 +1,1 @@
+"""Benchmarks: invented inputs and timing harnesses. They measure speed, never correctness."""

@@ -40,24 +40,28 @@ def decode_keys(keys: IntArray) -> tuple[IntArray, FloatArray]:
 
 
 def top_keys(keys: IntArray, k: int) -> IntArray:
-    """The k largest keys of every row of a 2-D key array, sorted descending.
+    """The k largest keys of every row of a 2-D key array, in no particular order.
 
     Rows with fewer than k columns are padded with EMPTY_KEY.
     """
     n_rows, n_cols = keys.shape
     if n_cols < k:
         pad = np.full((n_rows, k - n_cols), EMPTY_KEY, dtype=np.int64)
-        keys = np.concatenate([keys, pad], axis=1)
-        n_cols = k
+        return np.concatenate([keys, pad], axis=1)
     if n_cols > k:
         part = np.argpartition(keys, n_cols - k, axis=1)[:, n_cols - k :]
         keys = np.take_along_axis(keys, part, axis=1)
+    return keys
+
+
+def sort_keys(keys: IntArray) -> IntArray:
+    """Rows of a key table sorted descending (best neighbour first)."""
     # Ascending sort then reverse: EMPTY_KEY cannot be negated without overflow.
     return np.ascontiguousarray(np.sort(keys, axis=1)[:, ::-1])
 
 
 def block_top_keys(sim: Float32Array, cols: IntArray, k: int) -> IntArray:
-    """Top-k keys of every row of a dense similarity block.
+    """Top-k keys of every row of a dense similarity block, in no particular order.
 
     Parameters
     ----------
@@ -83,6 +87,18 @@ def block_top_keys(sim: Float32Array, cols: IntArray, k: int) -> IntArray:
 
 
 def merge_keys(table: IntArray, rows: IntArray, new: IntArray) -> None:
-    """Merge candidate keys ``new`` (len(rows), k') into ``table[rows]`` in place."""
+    """Merge candidate keys ``new`` (len(rows), k') into ``table[rows]`` in place.
+
+    The caller guarantees that a (row, column) pair is offered at most once over
+    all merges, so no de-duplication is needed. Rows whose best new key does not
+    beat their current worst key are skipped (the common case in later rounds).
+    """
     k = table.shape[1]
-    table[rows] = top_keys(np.concatenate([table[rows], new], axis=1), k)
+    if new.shape[1] == 0 or rows.size == 0:
+        return
+    current = table[rows]
+    better = new.max(axis=1) > current.min(axis=1)
+    if not better.any():
+        return
+    rows, current, new = rows[better], current[better], new[better]
+    table[rows] = top_keys(np.concatenate([current, new], axis=1), k)

@@ -22,7 +22,7 @@ import scipy.sparse as sp
 from sklearn.neighbors import NearestNeighbors
 
 from service.geometry._knn_partition import BYTES_PER_ENTRY, partitioned_keys
-from service.geometry._topk import block_top_keys, decode_keys
+from service.geometry._topk import block_top_keys, decode_keys, sort_keys
 from service.geometry.types import FloatArray, IntArray, RngLike, as_generator
 
 __all__ = ["EXACT_MAX_DOCS", "KnnGraph", "cosine_knn", "euclidean_knn", "recall_at_k"]
@@ -31,6 +31,9 @@ __all__ = ["EXACT_MAX_DOCS", "KnnGraph", "cosine_knn", "euclidean_knn", "recall_
 EXACT_MAX_DOCS = 20_000
 
 _MiB = 1 << 20
+_ROUNDS = 8  # at most this many second-hop rounds after the first pass
+_LSA_DIM = 128  # dimensions of the coarse map that guides the partition
+_LSA_SAMPLE = 10_000  # rows the coarse map is fitted on (k-means: twice as many)
 
 
 @dataclass(frozen=True)
@@ -147,9 +150,11 @@ def cosine_knn(
         raise ValueError(f"n_jobs must be >= 1, got {n_jobs}")
     if recall_sample < 0:
         raise ValueError(f"recall_sample must be >= 0, got {recall_sample}")
-    if probes < 1 or docs_per_cluster < 1:
+    # One probe links no cluster to another, and the second-hop rounds can only
+    # grow from links that exist: at least two.
+    if probes < 2 or docs_per_cluster < 1:
         raise ValueError(
-            f"probes and docs_per_cluster must be >= 1, got {probes} and {docs_per_cluster}"
+            f"probes must be >= 2 and docs_per_cluster >= 1, got {probes} and {docs_per_cluster}"
         )
     gen = as_generator(rng)
     if method == "exact" or (method == "auto" and n <= EXACT_MAX_DOCS):
@@ -160,8 +165,10 @@ def cosine_knn(
         k,
         n_clusters=max(1, round(n / docs_per_cluster)),
         probes=probes,
-        dim=64,
-        sample_size=20_000,
+        rounds=_ROUNDS,
+        round_probes=probes,
+        dim=_LSA_DIM,
+        sample_size=_LSA_SAMPLE,
         memory_budget_bytes=memory_budget_bytes,
         n_jobs=n_jobs,
         seed=int(gen.integers(2**63 - 1)),
@@ -170,7 +177,7 @@ def cosine_knn(
     if recall_sample == 0:
         return graph
     rows = np.sort(gen.choice(n, size=min(recall_sample, n), replace=False))
-    exact = decode_keys(_exact_keys(csr, rows, k, memory_budget_bytes, n_jobs))[0]
+    exact = decode_keys(sort_keys(_exact_keys(csr, rows, k, memory_budget_bytes, n_jobs)))[0]
     recall = recall_at_k(graph.indices[rows], exact)
     return KnnGraph(graph.indices, graph.distances, "approximate", recall, "cosine")
 
@@ -265,11 +272,13 @@ def _check_unit_rows(X: sp.spmatrix | sp.sparray) -> sp.csr_matrix:
             f"X has {n_empty} all-zero row(s) (documents with no kept term); "
             "remove them before building the graph"
         )
-    norms = np.sqrt(np.bincount(
-        np.repeat(np.arange(csr.shape[0]), np.diff(csr.indptr)),
-        weights=csr.data.astype(np.float64) ** 2,
-        minlength=csr.shape[0],
-    ))
+    norms = np.sqrt(
+        np.bincount(
+            np.repeat(np.arange(csr.shape[0]), np.diff(csr.indptr)),
+            weights=csr.data.astype(np.float64) ** 2,
+            minlength=csr.shape[0],
+        )
+    )
     bad = np.abs(norms - 1.0) > 1e-4
     if bad.any():
         raise ValueError(
@@ -279,9 +288,7 @@ def _check_unit_rows(X: sp.spmatrix | sp.sparray) -> sp.csr_matrix:
     return csr
 
 
-def _exact_keys(
-    X: sp.csr_matrix, rows: IntArray, k: int, budget: int, n_jobs: int
-) -> IntArray:
+def _exact_keys(X: sp.csr_matrix, rows: IntArray, k: int, budget: int, n_jobs: int) -> IntArray:
     """Exact top-k keys of ``rows`` against all rows of X, blockwise over threads."""
     n = X.shape[0]
     XT = X.T.tocsr()
@@ -299,6 +306,8 @@ def _exact_keys(
     return np.concatenate(parts, axis=0)
 
 
-def _graph(keys: IntArray, method: Literal["exact", "approximate"], recall: float | None) -> KnnGraph:
-    idx, sim = decode_keys(keys)
+def _graph(
+    keys: IntArray, method: Literal["exact", "approximate"], recall: float | None
+) -> KnnGraph:
+    idx, sim = decode_keys(sort_keys(keys))
     return KnnGraph(idx, np.clip(1.0 - sim, 0.0, 2.0), method, recall, "cosine")

@@ -64,8 +64,8 @@ def create_collection(session: Session, name: Any, settings: Any = None) -> dict
     check_name(name)
     parsed = parse_settings(settings)
     duplicate = ConflictError(f"collection {name!r} already exists", {"collection": name})
-    if session.scalars(select(Collection.id).where(Collection.name == name)).first():
-        raise duplicate
+    # Insert and let the unique name decide: no read before the write, which on SQLite
+    # would make the transaction unable to write once another writer committed.
     now = utcnow()
     coll = Collection(
         name=name, settings=parsed.model_dump(), created_at=now, updated_at=now, change_count=0
@@ -73,7 +73,7 @@ def create_collection(session: Session, name: Any, settings: Any = None) -> dict
     session.add(coll)
     try:
         session.commit()
-    except IntegrityError as exc:  # created concurrently by another request
+    except IntegrityError as exc:  # the name exists (perhaps created just now)
         session.rollback()
         raise duplicate from exc
     return _view(session, coll)

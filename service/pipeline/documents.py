@@ -102,6 +102,11 @@ def _upsert_valid(
             deltas.subtract(decode_counts(previous.term_counts)[0].tolist())
             updates.append(row | {"doc_id": previous.id})
             statuses[index] = UPDATED
+    # Every row written here carries the change count this transaction ends with, so a
+    # build that saw change count C holds exactly the rows with revision <= C.
+    revision = locked.change_count + len(inserts) + len(updates)
+    for written in (*inserts, *updates):
+        written["revision"] = revision
     apply_df_deltas(conn, deltas)
     repo.insert_documents(conn, inserts)
     repo.update_documents(conn, updates)

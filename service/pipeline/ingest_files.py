@@ -58,11 +58,12 @@ Item = tuple[int, "dict[str, Any] | TidemapError"]
 
 
 def detect_format(path: Path) -> str:
-    """``text`` for a folder, else from the suffix (.jsonl/.ndjson/.json lines, .csv)."""
+    """``text`` for a folder, else from the suffix: .jsonl/.ndjson, .csv/.tsv. A .json file
+    is not guessed: it may hold one array rather than an object per line."""
     if path.is_dir():
         return "text"
     suffix = path.suffix.lower()
-    if suffix in (".jsonl", ".ndjson", ".json"):
+    if suffix in (".jsonl", ".ndjson"):
         return "jsonl"
     if suffix in (".csv", ".tsv"):
         return "csv"
@@ -72,7 +73,7 @@ def detect_format(path: Path) -> str:
     )
 
 
-@dataclass
+@dataclass(frozen=True)
 class Source:
     """One input: its format, how many items it expects (None: unknown) and the reader."""
 

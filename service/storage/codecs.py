@@ -212,9 +212,10 @@ def decode_many(blobs: Sequence[Buffer]) -> tuple[Int64Array, Int64Array, Int32A
     Notes
     -----
     All blobs are joined into one byte array and decoded in a fixed number of numpy passes:
-    the terminating bytes (high bit clear) mark where each varint ends, each varint is
-    assembled from at most five 7-bit groups, and the ids of every row are recovered by
-    one cumulative sum of the gaps, corrected by the running total at each row start.
+    the final bytes (high bit clear) mark where each varint ends; one- and two-byte
+    varints are assembled from the final byte and the byte before it, the rare longer ones
+    separately; and the ids of every row come from one cumulative sum of the gaps, reset
+    at each row start. Each blob is checked to end exactly on its last varint.
     """
     n_docs = len(blobs)
     lengths = np.fromiter(map(len, blobs), dtype=np.int64, count=n_docs)
@@ -230,6 +231,8 @@ def decode_many(blobs: Sequence[Buffer]) -> tuple[Int64Array, Int64Array, Int32A
         bad = int(np.argmax(heads[:, 0] != FORMAT_VERSION))
         raise ValueError(f"blob {bad} has version tag {heads[bad, 0]}, expected {FORMAT_VERSION}")
     n_terms = heads[:, 1:].copy().view("<u4").ravel().astype(np.int64)
+    # Boolean indexing suits this mask of long runs (measured: 24 ms for 100k blobs,
+    # against 88 ms for np.compress and 87 ms for joining sliced blobs).
     in_payload = np.ones(joined.shape, dtype=bool)
     in_payload[head_pos] = False
     return _decode_payload(joined[in_payload], lengths - HEADER_SIZE, n_terms)
@@ -241,14 +244,17 @@ def _decode_payload(
     """Decode concatenated payloads (headers removed) of blobs with `n_terms` terms each."""
     indptr = np.zeros(n_terms.shape[0] + 1, dtype=np.int64)
     np.cumsum(n_terms, out=indptr[1:])
-    values, long_at = _decode_stream(payload, sizes, 2 * n_terms)
-    # Only varints of three or more bytes can hold a count that is too large.
-    long_counts = values[long_at[long_at % 2 == 1]]
-    if long_counts.size and int(long_counts.max()) >= MAX_COUNT:
-        raise ValueError(f"a count exceeds {MAX_COUNT}")
+    short, long_at, long_value = _decode_stream(payload, sizes, 2 * indptr)
     # `steps` holds g + 1 = t_i - t_{i-1}, and `data` holds c + 1, the count.
-    steps = np.add(values[0::2], 1, dtype=np.int64)
-    data = np.add(values[1::2], 1, dtype=np.int32)
+    steps = np.add(short[0::2], 1, dtype=np.int64)
+    data = np.add(short[1::2], 1, dtype=np.int32)
+    if long_at.size:
+        is_gap = long_at % 2 == 0
+        steps[long_at[is_gap] // 2] = long_value[is_gap] + 1
+        long_count = long_value[~is_gap]
+        if long_count.size and int(long_count.max()) >= MAX_COUNT:
+            raise ValueError(f"a count exceeds {MAX_COUNT}")
+        data[long_at[~is_gap] // 2] = long_count + 1
     # Per-row cumulative sums in one pass: a row's first step is its first id (t_0 = g_0),
     # and subtracting the previous row's last id there restarts the running sum.
     row_start = indptr[:-1][n_terms > 0]
@@ -262,72 +268,71 @@ def _decode_payload(
     return indptr, ids, data
 
 
-def _byte_before(
-    payload: NDArray[np.uint8], is_final: NDArray[np.bool_], k: int
-) -> NDArray[np.uint8]:
-    """Return, for every varint, the byte `k` places before its final byte (0 off the start)."""
-    shifted = np.empty_like(payload)
-    shifted[:k] = 0
-    shifted[k:] = payload[: payload.size - k]
-    return shifted[is_final]
-
-
 def _decode_stream(
-    payload: NDArray[np.uint8], sizes: Int64Array, n_values: Int64Array
-) -> tuple[NDArray[np.uint32], Int64Array]:
+    payload: NDArray[np.uint8], sizes: Int64Array, value_ptr: Int64Array
+) -> tuple[NDArray[np.uint16], Int64Array, Int64Array]:
     """Decode concatenated varint payloads, checking each holds its expected values.
 
-    `sizes` are the blobs' payload lengths in bytes and `n_values` the number of varints
-    each must hold. Returns the values and the positions of those of three or more bytes.
+    `sizes` are the blobs' payload lengths in bytes and `value_ptr` (n_blobs + 1) the
+    running total of the varints they must hold. Returns every value below 2**14 (the one-
+    and two-byte varints, nearly all), and the positions and values of the longer ones
+    (their entries in the first array are meaningless).
 
-    Everything is computed per varint from the byte arrays "final byte" and "byte before
-    it", selected with boolean masks rather than index arrays, so one- and two-byte
-    varints (nearly all) cost a few passes over byte-sized data; the rare longer ones are
-    completed afterwards. A varint never reaches back into the previous blob, because
-    each payload is checked to end on a final byte, which stops the chain.
+    The positions of the final bytes (high bit clear) are found once; the final byte and
+    the byte before it are then gathered for every varint, and the rare longer varints are
+    completed from sparse gathers. Gathers by index are used because numpy's boolean-mask
+    selection is slow on irregular masks (measured on 29 M bytes: 256 ms for one masked
+    selection, against 63 ms to find the indices once and 31 ms per gather).
     """
-    is_final = payload < 0x80
-    byte_ptr = np.zeros(sizes.shape[0] + 1, dtype=np.int64)
-    np.cumsum(sizes, out=byte_ptr[1:])
+    final_at = np.flatnonzero(payload < 0x80)
+    # Blob b holds exactly its varints if its last byte is the value_ptr[b + 1]-th final
+    # byte of the stream; then no varint reaches across a blob boundary either, because a
+    # final byte stops the chain of continuation bytes.
     nonempty = sizes > 0
-    found = np.zeros(sizes.shape, dtype=np.int64)
-    closed = np.ones(sizes.shape, dtype=bool)
-    if payload.size:
-        starts = byte_ptr[:-1][nonempty]
-        found[nonempty] = np.add.reduceat(is_final.view(np.uint8), starts, dtype=np.int64)
-        closed[nonempty] = is_final[byte_ptr[1:][nonempty] - 1]
-    if not ((found == n_values).all() and closed.all()):
-        bad = int(np.argmax((found != n_values) | ~closed))
+    ok = nonempty == (value_ptr[1:] > value_ptr[:-1])
+    nth = value_ptr[1:][nonempty] - 1
+    ends_on = np.zeros(nth.shape, dtype=bool)
+    inside = nth < final_at.size
+    ends_on[inside] = final_at[nth[inside]] == (np.cumsum(sizes) - 1)[nonempty][inside]
+    ok[nonempty] &= ends_on
+    if not ok.all():
+        bad = int(np.argmin(ok))
         raise ValueError(
-            f"blob {bad} is malformed: expected {int(n_values[bad])} varints in "
-            f"{int(sizes[bad])} payload bytes"
+            f"blob {bad} is malformed: expected {int(value_ptr[bad + 1] - value_ptr[bad])} "
+            f"varints in {int(sizes[bad])} payload bytes"
         )
-    values = payload[is_final].astype(np.uint32)
-    before = _byte_before(payload, is_final, 1)
-    two = before >= 0x80
+    short = payload.take(final_at).astype(np.uint16)
+    # before[j] is the byte just before the j-th final byte (0, a final byte, off the start).
+    padded = np.zeros(payload.size + _MAX_VARINT_BYTES, dtype=np.uint8)
+    padded[_MAX_VARINT_BYTES:] = payload
+    before = padded[_MAX_VARINT_BYTES - 1 : -1].take(final_at)
+    two = (before >= 0x80).view(np.uint8)
+    empty = np.zeros(0, dtype=np.int64)
     if not two.any():
-        return values, np.zeros(0, dtype=np.int64)
-    # LEB128 puts the high bits last: value = final << 7 | (byte before & 0x7F).
-    values = np.where(two, (values << 7) | (before & 0x7F), values)
-    before = _byte_before(payload, is_final, 2)
-    long_at = np.flatnonzero(two & (before >= 0x80))
+        return short, empty, empty
+    # LEB128 puts the high bits last: value = final << 7 | (byte before & 0x7F). Masked
+    # arithmetic on small integers, as it is cheaper than np.where on wide ones.
+    short <<= two * 7
+    short |= before & (two * 0x7F)
+    # Varints of three or more bytes: a continuation byte two places before the final one.
+    two &= padded[_MAX_VARINT_BYTES - 2 : -2].take(final_at) >= 0x80
+    long_at = np.flatnonzero(two)
     if long_at.size == 0:
-        return values, long_at
-    # Horner's rule backwards from the final byte for the varints of three or more bytes.
-    value = values[long_at].astype(np.int64)
-    chain = np.arange(long_at.size)  # varints whose byte `k` before the final continues
+        return short, empty, empty
+    end = final_at[long_at] + _MAX_VARINT_BYTES  # their final bytes, as indices in `padded`
+    # Horner's rule backwards from the final byte, one more byte while the chain continues.
+    value = short[long_at].astype(np.int64)
+    chain = np.arange(long_at.size)
     k = 2
     while chain.size:
         if k == _MAX_VARINT_BYTES:
             raise ValueError(f"a varint is longer than {_MAX_VARINT_BYTES} bytes")
-        value[chain] = (value[chain] << 7) | (before[long_at[chain]] & 0x7F)
+        value[chain] = (value[chain] << 7) | (padded[end[chain] - k] & 0x7F)
         k += 1
-        before = _byte_before(payload, is_final, k)
-        chain = chain[before[long_at[chain]] >= 0x80]
+        chain = chain[padded[end[chain] - k] >= 0x80]
     if int(value.max()) > 0xFFFFFFFF:
         raise ValueError("a varint exceeds 32 bits")
-    values[long_at] = value
-    return values, long_at
+    return short, long_at, value
 
 
 def encode_array(a: ArrayLike) -> tuple[str, tuple[int, ...], bytes]:

@@ -14,6 +14,7 @@ from typing import Any
 from sqlalchemy import Connection, bindparam, case, delete, func, select, update
 
 from service.errors import NotFoundError
+from service.storage.index_store import delete_collection_index
 from service.storage.models import Collection, Document
 from service.storage.terms import CHUNK, TERMS
 from service.storage.types import utcnow
@@ -27,6 +28,8 @@ class LockedCollection:
     id: int
     name: str
     settings: dict[str, Any]
+    # The change count before this transaction's changes (documents.revision).
+    change_count: int = 0
 
 
 def lock_collection(conn: Connection, name: str) -> LockedCollection:
@@ -34,11 +37,32 @@ def lock_collection(conn: Connection, name: str) -> LockedCollection:
         update(COLLECTIONS)
         .where(COLLECTIONS.c.name == name)
         .values(updated_at=utcnow())
-        .returning(COLLECTIONS.c.id, COLLECTIONS.c.settings)
+        .returning(COLLECTIONS.c.id, COLLECTIONS.c.settings, COLLECTIONS.c.change_count)
     ).first()
     if row is None:
         raise NotFoundError(f"collection {name!r} does not exist", {"collection": name})
-    return LockedCollection(id=int(row.id), name=name, settings=dict(row.settings))
+    return LockedCollection(
+        id=int(row.id), name=name, settings=dict(row.settings), change_count=int(row.change_count)
+    )
+
+
+def hold_collection(
+    conn: Connection, *, name: str | None = None, coll_id: int | None = None
+) -> Any:
+    """Lock the collection row without changing it (a no-op UPDATE: the row lock on
+    PostgreSQL, the write lock on SQLite) and return it, or None when there is none.
+
+    For use cases that must be serialised per collection but do not change it (queueing
+    a build, the re-index schedule)."""
+    if (name is None) == (coll_id is None):
+        raise ValueError("give the collection's name or its id")
+    where = COLLECTIONS.c.name == name if name is not None else COLLECTIONS.c.id == coll_id
+    return conn.execute(
+        update(COLLECTIONS)
+        .where(where)
+        .values(change_count=COLLECTIONS.c.change_count)
+        .returning(*COLLECTIONS.c)
+    ).first()
 
 
 def collection_id(conn: Connection, name: str) -> int:
@@ -115,6 +139,7 @@ def delete_document_row(conn: Connection, coll_id: int, external_id: str) -> byt
 
 def delete_collection_rows(conn: Connection, coll_id: int) -> None:
     # Explicit deletes rather than trusting ON DELETE CASCADE to be enabled.
+    delete_collection_index(conn, coll_id)
     conn.execute(delete(DOCUMENTS).where(DOCUMENTS.c.collection_id == coll_id))
     conn.execute(delete(TERMS).where(TERMS.c.collection_id == coll_id))
     conn.execute(delete(COLLECTIONS).where(COLLECTIONS.c.id == coll_id))

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import importlib.util
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -10,7 +12,7 @@ from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import Engine
+from sqlalchemy import Connection, Engine
 
 from service.errors import SchemaMismatchError
 
@@ -55,11 +57,47 @@ def schema_status(engine: Engine) -> SchemaStatus:
     return SchemaStatus(current=current, head=head, state=state)
 
 
+@contextmanager
+def _migration_connection(engine: Engine) -> Iterator[Connection]:
+    """A connection in one transaction for Alembic.
+
+    SQLite: foreign keys are switched off around the migration (outside the transaction,
+    the only place SQLite honours the pragma). Batch mode rebuilds a table by copying it
+    and dropping the old one, and with foreign keys on, dropping a referenced table would
+    cascade into the tables that reference it (collections -> documents, terms). The
+    rebuilt schema is checked with ``PRAGMA foreign_key_check`` before the commit.
+    """
+    sqlite = engine.dialect.name == "sqlite"
+    with engine.connect() as conn:
+        raw = conn.connection.dbapi_connection
+        assert raw is not None
+        if sqlite:
+            raw.execute("PRAGMA foreign_keys=OFF")
+        try:
+            with conn.begin():
+                yield conn
+                if sqlite:
+                    broken = conn.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
+                    if broken:
+                        raise RuntimeError(f"the migration broke foreign keys: {broken[:5]}")
+        finally:
+            if sqlite:
+                raw.execute("PRAGMA foreign_keys=ON")
+
+
 def upgrade(engine: Engine, revision: str = "head") -> None:
     config = alembic_config()
-    with engine.begin() as conn:
+    with _migration_connection(engine) as conn:
         config.attributes["connection"] = conn
         command.upgrade(config, revision)
+
+
+def downgrade(engine: Engine, revision: str) -> None:
+    """Run the migrations down to ``revision`` ("base": nothing left)."""
+    config = alembic_config()
+    with _migration_connection(engine) as conn:
+        config.attributes["connection"] = conn
+        command.downgrade(config, revision)
 
 
 def require_current(engine: Engine) -> None:

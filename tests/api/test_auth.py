@@ -31,12 +31,17 @@ EXPECTED_SCOPE: dict[tuple[str, str], str] = {
     ("GET", "/v1/collections/{collection}/documents/{document_id}"): "read",
     ("PUT", "/v1/collections/{collection}/documents/{document_id}"): "write",
     ("DELETE", "/v1/collections/{collection}/documents/{document_id}"): "write",
+    ("POST", "/v1/collections/{collection}/builds"): "write",
+    ("GET", "/v1/collections/{collection}/builds"): "read",
+    ("GET", "/v1/collections/{collection}/builds/{build_id}"): "read",
+    ("DELETE", "/v1/collections/{collection}/builds/{build_id}"): "write",
+    ("GET", "/v1/collections/{collection}/index"): "read",
 }
 PUBLIC = {("GET", "/healthz")}
 
 # Values for path parameters: the walker creates the collection and the document first,
 # so every request names things that exist.
-PATH_VALUES = {"collection": "walk", "document_id": "doc-1"}
+PATH_VALUES = {"collection": "walk", "document_id": "doc-1", "build_id": "1"}
 BODIES: dict[str, dict[str, Any]] = {
     "PUT": {"json": {"title": "Walk", "text": "Harbour walk along the tide line."}},
     "POST": {"json": [document(2)]},

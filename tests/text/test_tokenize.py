@@ -83,6 +83,14 @@ def test_normalise_ascii_fast_path_agrees_with_full_path() -> None:
 # --- word boundaries -----------------------------------------------------------------
 
 
+def test_ascii_fast_path_gives_the_unicode_path_tokens() -> None:
+    ascii_text = "".join(map(chr, range(32, 127))) + " Don't l'homme x_y 3rd Z9 it's A-B"
+    assert ascii_text.isascii()
+    # One accented word makes the same text take the Unicode path.
+    assert PLAIN.tokens(ascii_text + " é") == PLAIN.tokens(ascii_text)
+    assert PLAIN.tokens(ascii_text + " éé") == [*PLAIN.tokens(ascii_text), "éé"]
+
+
 def test_hyphens_underscores_periods_and_symbols_split_words() -> None:
     assert PLAIN.tokens("well-known snake_case e.g. fish🐟chips x/y@zz") == [
         "well",
