@@ -99,6 +99,8 @@ class CorpusMap:
     pi: np.ndarray  # (n_v,) stationary distribution within the component
     degrees: np.ndarray  # (n_v,) raw kernel degrees (Nystrom needs them)
     n_coordinates: np.ndarray  # (C,) coordinates kept at the default t
+    smallest_eigenvalue: np.ndarray  # (C,) lower estimate of each component's spectrum
+    sigma_floor: float  # the bandwidth floor; a new point's bandwidth gets the same
     group: np.ndarray  # (n,) int64 local group label, -1 for none
     groups: list[GroupSummary]
     statistics: dict[str, Any] = field(default_factory=dict)
@@ -260,6 +262,8 @@ def map_corpus(
         pi=pi,
         degrees=degrees,
         n_coordinates=n_coords,
+        smallest_eigenvalue=np.array([dm.smallest_eigenvalue for dm in maps]),
+        sigma_floor=float(affinity.sigma_floor),
         group=group,
         groups=groups,
         statistics=statistics,
