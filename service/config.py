@@ -35,7 +35,7 @@ class Settings(BaseSettings):
         default=64 * MIB, ge=1024, description="Largest non-streamed request body."
     )
     ndjson_chunk_size: int = Field(
-        default=500, ge=1, description="NDJSON documents committed per transaction."
+        default=1000, ge=1, description="NDJSON documents committed per transaction."
     )
     auth_cache_seconds: float = Field(
         default=5.0,

@@ -14,15 +14,17 @@ from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field, replace
 from datetime import datetime
 from functools import lru_cache
+from itertools import chain
 from typing import Any
 
+import numpy as np
 from sqlalchemy.orm import Session
 
 from service.errors import InvalidInputError, MalformedRequestError, NotFoundError, TidemapError
 from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.document_input import DocumentInput, check_external_id, parse_document
 from service.storage import repository as repo
-from service.storage.codecs import decode_counts, encode_counts
+from service.storage.codecs import decode_counts, decode_many, encode_many
 from service.storage.terms import add_terms, apply_df_deltas
 from service.storage.types import utcnow
 from service.text.tokenize import Tokenizer, make_tokenizer
@@ -73,22 +75,25 @@ def _upsert_valid(
             continue
         pending.append((index, doc, digest, tokenizer.count(f"{doc.title}\n{doc.text}")))
     # Every new version adds one to each of its terms; replaced versions take one away.
-    increments = Counter(t for *_, counts in pending for t in counts)
-    ids = add_terms(conn, locked.id, increments)
-    deltas: Counter[int] = Counter()
+    counters = [counts for *_, counts in pending]
+    ids = add_terms(conn, locked.id, Counter(chain.from_iterable(counters)))
+    lengths = [len(c) for c in counters]
+    total = sum(lengths)
+    flat_ids = np.fromiter(map(ids.__getitem__, chain.from_iterable(counters)), np.int64, total)
+    flat_counts = np.fromiter(chain.from_iterable(c.values() for c in counters), np.int64, total)
+    blobs = encode_many(lengths, flat_ids, flat_counts)
     inserts: list[dict[str, Any]] = []
     updates: list[dict[str, Any]] = []
-    for index, doc, digest, counts in pending:
-        pairs = sorted((ids[t], c) for t, c in counts.items())
-        new_ids = [tid for tid, _ in pairs]
+    replaced: list[bytes] = []
+    for (index, doc, digest, _), blob, n_terms in zip(pending, blobs, lengths, strict=True):
         row = {
             "title": doc.title,
             "text": doc.text,
             "metadata": doc.metadata,
             "published_at": doc.published_at,
             "content_hash": digest,
-            "term_counts": encode_counts(new_ids, [c for _, c in pairs]),
-            "n_terms": len(pairs),
+            "term_counts": blob,
+            "n_terms": n_terms,
             "updated_at": now,
         }
         previous = stored.get(doc.external_id)
@@ -99,15 +104,17 @@ def _upsert_valid(
             )
             statuses[index] = INSERTED
         else:
-            deltas.subtract(decode_counts(previous.term_counts)[0].tolist())
+            replaced.append(previous.term_counts)
             updates.append(row | {"doc_id": previous.id})
             statuses[index] = UPDATED
+    if replaced:
+        old, times = np.unique(decode_many(replaced)[1], return_counts=True)
+        apply_df_deltas(conn, dict(zip(old.tolist(), (-times).tolist(), strict=True)))
     # Every row written here carries the change count this transaction ends with, so a
     # build that saw change count C holds exactly the rows with revision <= C.
     revision = locked.change_count + len(inserts) + len(updates)
     for written in (*inserts, *updates):
         written["revision"] = revision
-    apply_df_deltas(conn, deltas)
     repo.insert_documents(conn, inserts)
     repo.update_documents(conn, updates)
     repo.bump_change_count(conn, locked.id, len(inserts) + len(updates))

@@ -150,6 +150,48 @@ def encode_counts(term_ids: ArrayLike, counts: ArrayLike) -> bytes:
     return bytes((FORMAT_VERSION,)) + n.to_bytes(4, "little") + _varints(values)
 
 
+def encode_many(lengths: Sequence[int], term_ids: ArrayLike, counts: ArrayLike) -> list[bytes]:
+    """Blobs of many documents at once, byte-identical to `encode_counts` per document.
+
+    Document ``i`` owns the next ``lengths[i]`` (id, count) pairs of the flat arrays, in
+    any order; ids must be distinct within a document and counts positive (the caller's
+    tokenizer guarantees both). One numpy pass for a whole chunk instead of a call per
+    document, whose fixed cost dominates for ~100 terms.
+    """
+    lens = np.asarray(lengths, dtype=np.int64)
+    ids_in = np.asarray(term_ids, dtype=np.int64)
+    cnt_in = np.asarray(counts, dtype=np.int64)
+    if ids_in.shape != cnt_in.shape or ids_in.size != int(lens.sum()):
+        raise ValueError("term_ids and counts must hold sum(lengths) entries each")
+    if ids_in.size and (ids_in.min() < 0 or ids_in.max() > MAX_TERM_ID or cnt_in.min() < 1):
+        raise ValueError("term ids must lie in [0, 2**32) and counts be positive")
+    doc = np.repeat(np.arange(lens.size, dtype=np.int64), lens)
+    order = np.argsort((doc << 32) | ids_in, kind="stable")
+    ids = ids_in[order]
+    cnt = cnt_in[order]
+    starts = np.cumsum(lens) - lens
+    gaps = np.empty_like(ids)
+    gaps[1:] = ids[1:] - ids[:-1] - 1
+    first = starts[lens > 0]
+    gaps[first] = ids[first]
+    if gaps.size and gaps.min() < 0:
+        raise ValueError("term ids repeat within a document")
+    values = np.empty(2 * ids.size, dtype=np.uint64)
+    values[0::2] = gaps
+    values[1::2] = cnt - 1
+    n_bytes = np.ones(values.shape, dtype=np.int64)
+    for limit in (1 << 7, 1 << 14, 1 << 21, 1 << 28):
+        n_bytes += values >= limit
+    payload = _varints(values)
+    value_end = np.concatenate(([0], np.cumsum(n_bytes)))
+    bounds = value_end[2 * np.concatenate(([0], np.cumsum(lens)))].tolist()
+    head = bytes((FORMAT_VERSION,))
+    return [
+        head + int(n).to_bytes(4, "little") + payload[a:b]
+        for n, a, b in zip(lens.tolist(), bounds[:-1], bounds[1:], strict=True)
+    ]
+
+
 def decode_counts(blob: Buffer) -> tuple[Int64Array, Int32Array]:
     """Decode one blob written by :func:`encode_counts`.
 

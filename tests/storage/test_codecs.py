@@ -322,3 +322,31 @@ def test_decode_array_refuses_bad_input(
 ) -> None:
     with pytest.raises(ValueError, match=message):
         decode_array(dtype, shape, data)  # type: ignore[arg-type]
+
+
+def test_encode_many_equals_encode_counts_per_document() -> None:
+    from service.storage.codecs import encode_many
+
+    rng = np.random.default_rng(5)
+    docs = []
+    for _ in range(200):
+        n = int(rng.integers(0, 60))
+        ids = rng.choice(2**32 - 1, size=n, replace=False)
+        counts = rng.integers(1, 300, size=n)
+        docs.append((ids, counts))
+    # Flat arrays in unsorted per-document order, as the ingest path builds them.
+    blobs = encode_many(
+        [len(i) for i, _ in docs],
+        np.concatenate([i for i, _ in docs]),
+        np.concatenate([c for _, c in docs]),
+    )
+    for (ids, counts), blob in zip(docs, blobs, strict=True):
+        order = np.argsort(ids)
+        assert blob == encode_counts(ids[order], counts[order])
+
+
+def test_encode_many_rejects_repeated_ids() -> None:
+    from service.storage.codecs import encode_many
+
+    with pytest.raises(ValueError, match="repeat"):
+        encode_many([3], np.array([4, 9, 4]), np.array([1, 1, 1]))
