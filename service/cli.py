@@ -89,20 +89,30 @@ def cmd_serve(args: argparse.Namespace) -> int:
     import uvicorn  # the web stack is imported only by the commands that serve
 
     from service.api.app import create_app
+    from service.cli_build import embedded_worker
 
     log_level = settings.log_level.lower()
-    with _database(settings) as engine:  # the schema is checked before anything starts
+    # The schema is checked before anything starts; with SQLite one process is a whole
+    # service: a worker thread runs the builds.
+    with _database(settings) as engine, embedded_worker(settings, engine):
         if args.workers == 1:
             app = create_app(settings, engine)
             uvicorn.run(app, host=settings.host, port=settings.port, log_level=log_level)
             return 0
+        _serve_processes(settings, args.workers, log_level)
+    return 0
+
+
+def _serve_processes(settings: Settings, workers: int, log_level: str) -> None:
+    import uvicorn
+
     # Each worker process builds its own app and engine from the same environment.
     uvicorn.run(
         "service.api.factory:app_from_environment",
         factory=True,
         host=settings.host,
         port=settings.port,
-        workers=args.workers,
+        workers=workers,
         log_level=log_level,
         # A worker imports the whole stack before it answers the supervisor's ping; the
         # default 5 s is too short on a busy small machine and kills healthy workers.
@@ -255,9 +265,23 @@ def cmd_ingest(args: argparse.Namespace) -> int:
 # --- demo ------------------------------------------------------------------------------
 
 
-def build_demo_index(engine: Engine, collection: str) -> None:
-    """Placeholder: a later issue builds the demo collection's index here and opens the
-    map page once the server answers. Loading the documents is all that happens now."""
+def build_demo_index(engine: Engine, collection: str) -> dict[str, Any]:
+    """Build the demo collection's index in this process and wait for it to publish."""
+    from service.cli_build import _run_until_finished, follow_build
+    from service.pipeline.builds import enqueue_build
+    from service.worker.worker import Worker, WorkerOptions
+
+    settings = load_settings()
+    factory = make_session_factory(engine)
+    with factory() as session:
+        job = enqueue_build(
+            session, collection, trigger="cli", max_attempts=settings.build_max_attempts
+        ).job
+    worker = Worker(factory, WorkerOptions.from_settings(settings))
+    runner = _run_until_finished(worker, factory, collection, job["id"])
+    final = follow_build(factory, collection, job["id"], quiet=True, alive=runner.is_alive)
+    runner.join()
+    return final
 
 
 def load_demo(engine: Engine, settings: Settings) -> tuple[BatchSummary, dict[str, str]]:
@@ -293,7 +317,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
     with _database(settings) as engine:
         summary, keys = load_demo(engine, settings)
         print_summary(summary, lambda i: f"article {i}", f"demo archive -> {DEMO_COLLECTION!r}")
-        build_demo_index(engine, DEMO_COLLECTION)
+        build = build_demo_index(engine, DEMO_COLLECTION)
+        print(f"index:      build {build['id']} {build['state']}", file=sys.stderr)
         url = f"http://127.0.0.1:{settings.port}"
         print(f"database:   {_shown(settings.database_url)}")
         print(f"collection: {DEMO_COLLECTION}")
@@ -433,6 +458,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--database", help="SQLAlchemy URL (default a temporary SQLite file)")
     p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    from service.cli_build import register
+
+    register(sub)
     return parser
 
 

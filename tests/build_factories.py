@@ -55,9 +55,7 @@ def delete(make: sessionmaker[Session], name: str, external_id: str) -> None:
 
 def queue(make: sessionmaker[Session], name: str, max_attempts: int = 3) -> int:
     with make() as session:
-        return int(
-            enqueue_build(session, name, trigger="api", max_attempts=max_attempts).job["id"]
-        )
+        return int(enqueue_build(session, name, trigger="api", max_attempts=max_attempts).job["id"])
 
 
 def worker(
@@ -102,7 +100,9 @@ def wait_for(predicate: Callable[[], bool], timeout: float = 20.0, step: float =
         time.sleep(step)
 
 
-def run_until_finished(w: Worker, make: sessionmaker[Session], job_id: int, rounds: int = 400) -> Any:
+def run_until_finished(
+    w: Worker, make: sessionmaker[Session], job_id: int, rounds: int = 400
+) -> Any:
     """Run worker rounds until the job has finished; its row."""
     for _ in range(rounds):
         row = job(make, job_id)

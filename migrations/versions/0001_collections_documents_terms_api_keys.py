@@ -12,7 +12,6 @@ from alembic import op
 
 import service.storage.types
 
-
 revision: str = "0001"
 down_revision: str | None = None
 branch_labels: str | Sequence[str] | None = None

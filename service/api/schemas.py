@@ -139,7 +139,7 @@ class IndexOut(BaseModel):
     edges: int | None
     components: int | None
     isolated: int | None
-    eigenvalues: list[float | None] | None
+    eigenvalues: list[Any] | None
     coordinates: int | None = Field(description="Diffusion coordinates kept.")
     groups: int | None
     parameters: dict[str, Any]

@@ -133,9 +133,13 @@ def diffusion_map(
         Accepted residual of every eigenpair of the symmetric conjugate.
     tau : float, default 0.0
         Regularisation: ``tau / n`` is added to every affinity (the diagonal included),
-        applied implicitly as a rank-one term. Measured on the benchmark graphs it
-        spreads the top of the spectrum but does not make the solver faster (see the
-        bench report), so it is off by default.
+        applied implicitly as a rank-one term. Measured on the benchmark graphs
+        (``service.bench``): it shifts the clustered top of the spectrum down as a whole
+        (``1 - lambda_k`` becomes about ``tau / (mean degree + tau)`` for every leading
+        k) instead of spreading it, speeds the solver 1.4x (``tau`` = 0.01 x mean
+        degree) to 2.1x (0.1 x) at 100,000 nodes, and lowers the 10-NN topic agreement
+        in the coordinates (0.994 -> 0.991 -> 0.981 at 0, 0.1 and 1 x mean degree). Off
+        by default.
     rng : int or numpy.random.Generator, default 0
         Seeds the solver's start vectors; equal seeds give bit-identical results.
 

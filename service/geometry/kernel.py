@@ -146,8 +146,11 @@ def self_tuning_affinity(graph: KnnGraph, *, sigma_floor: float | None = None) -
     >>> a = self_tuning_affinity(g)
     >>> a.sigma.tolist()
     [1.0, 1.0, 1.0, 2.0]
-    >>> np.round(a.weights.toarray(), 3).tolist()
-    [[0.0, 0.368, 0.0, 0.0], [0.368, 0.0, 0.368, 0.0], [0.0, 0.368, 0.0, 0.135], [0.0, 0.0, 0.135, 0.0]]
+    >>> print(np.round(a.weights.toarray(), 3))
+    [[0.    0.368 0.    0.   ]
+     [0.368 0.    0.368 0.   ]
+     [0.    0.368 0.    0.135]
+     [0.    0.    0.135 0.   ]]
     """
     idx, dist = graph.indices, np.asarray(graph.distances, dtype=np.float64)
     n, k = idx.shape
@@ -167,9 +170,7 @@ def self_tuning_affinity(graph: KnnGraph, *, sigma_floor: float | None = None) -
         raise ValueError(f"sigma_floor must be positive, got {sigma_floor}")
     sigma = _bandwidths(dist, k, sigma_floor)
     w = np.exp(-(dist**2) / (sigma[:, None] * sigma[idx]))
-    directed = sp.csr_matrix(
-        (w.ravel(), idx.ravel(), np.arange(0, n * k + 1, k)), shape=(n, n)
-    )
+    directed = sp.csr_matrix((w.ravel(), idx.ravel(), np.arange(0, n * k + 1, k)), shape=(n, n))
     weights = directed.maximum(directed.T).tocsr()
     weights.setdiag(0.0)
     weights.eliminate_zeros()
@@ -206,10 +207,14 @@ def kernel_weights(
     s = np.asarray(sigma_neighbors, dtype=np.float64)
     if d.ndim != 1 or d.shape != s.shape:
         raise ValueError(
-            f"distances and sigma_neighbors must be 1-D of equal length, got {d.shape} and {s.shape}"
+            "distances and sigma_neighbors must be 1-D of equal length, "
+            f"got {d.shape} and {s.shape}"
         )
     if not sigma_x > 0 or (s.size and s.min() <= 0):
-        raise ValueError(f"bandwidths must be positive, got sigma_x={sigma_x}, min {s.min(initial=1)}")
+        raise ValueError(
+            f"bandwidths must be positive, got sigma_x={sigma_x}, "
+            f"smallest neighbour sigma {s.min(initial=1.0)}"
+        )
     return np.exp(-(d**2) / (sigma_x * s))
 
 

@@ -18,7 +18,8 @@ eigenpair ``(1, top)``. Its spectrum lies in ``[-1, 1]``. The solvers:
     The polynomial cuts the number of Lanczos steps (and ARPACK's restarts and
     re-orthogonalisations, which dominated plain ARPACK on clustered spectra) by
     about its degree while keeping every wanted eigenvalue in the enhanced region.
-    Measured: the fastest on clustered spectra; see ``service/bench``.
+    Measured (``service.bench.spectrum_solvers``, 15-NN graphs, 41 pairs): 0.8 s at
+    10,000 nodes, 4.6 s at 30,000, 26 s at 100,000 on 2 cores, residuals < 1e-10.
 ``shift-invert``
     ARPACK on ``(A - sigma I)^-1`` with a SuperLU factorisation; exact and fast while
     the factor's fill-in stays small (about 30,000 nodes of a 15-NN graph), unusable

@@ -82,6 +82,20 @@ def _datetimes(values: list[datetime | None]) -> NDArray[np.datetime64]:
     return np.array(naive, dtype="datetime64[s]")
 
 
+def _compact_columns(global_ids: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int32]]:
+    """The term ids that occur (ascending) and each entry's column among them.
+
+    A mask over the id range and its running sum instead of np.unique + searchsorted:
+    linear in the entries (measured on 10.8 M entries: 1.3 s for unique + searchsorted).
+    """
+    if global_ids.size == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int32)
+    present = np.zeros(int(global_ids.max()) + 1, dtype=bool)
+    present[global_ids] = True
+    column_of = np.cumsum(present, dtype=np.int32) - 1
+    return np.flatnonzero(present).astype(np.int64), column_of[global_ids]
+
+
 def load_snapshot(session: Session, collection_id: int, *, seed: int = 0) -> Snapshot:
     """Read the collection's documents, dictionary and change count in one transaction.
 
@@ -139,10 +153,9 @@ def load_snapshot(session: Session, collection_id: int, *, seed: int = 0) -> Sna
     finally:
         session.rollback()
     indptr, global_ids, data = decode_many(blobs)
-    term_ids = np.unique(global_ids)
-    columns = np.searchsorted(term_ids, global_ids)
+    term_ids, columns = _compact_columns(global_ids)
     counts = sp.csr_matrix(
-        (data.astype(np.int32, copy=False), columns.astype(np.int32), indptr),
+        (data.astype(np.int32, copy=False), columns, indptr),
         shape=(len(ids), term_ids.shape[0]),
     )
     return Snapshot(
@@ -155,7 +168,7 @@ def load_snapshot(session: Session, collection_id: int, *, seed: int = 0) -> Sna
         titles=titles,
         published_at=_datetimes(dates),
         counts=counts,
-        term_ids=term_ids.astype(np.int64),
+        term_ids=term_ids,
         terms=[names[int(t)] for t in term_ids],
         excluded_doc_ids=np.asarray(excluded, dtype=np.int64),
         excluded_external_ids=excluded_ext,

@@ -97,20 +97,41 @@ def insert_array_rows(conn: Connection, rows: Sequence[Mapping[str, Any]]) -> No
         conn.execute(ARRAYS.insert(), list(rows))
 
 
-def load_arrays(
-    conn: Connection, version_id: int, names: Iterable[str] | None = None
-) -> dict[str, np.ndarray]:
-    """Every array of the version (or only ``names``, those present), decoded."""
+def _chunk_rows(conn: Connection, version_id: int, names: list[str] | None) -> list[Any]:
+    """(name, dtype, shape, chunk_no, data) of the version's chunks, in order.
+
+    PostgreSQL: through a binary cursor of the same connection (and transaction). The
+    driver's default text format sends bytea hex-encoded, twice its size, and decodes it
+    again: measured on a 130 MiB version, 0.71-1.26 s against 0.21-0.35 s in binary.
+    """
+    if conn.dialect.name == "postgresql":
+        raw: Any = conn.connection.dbapi_connection
+        sql = (
+            "SELECT name, dtype, shape, chunk_no, data FROM index_arrays "
+            "WHERE version_id = %s" + ("" if names is None else " AND name = ANY(%s)")
+        )
+        params: tuple[Any, ...] = (version_id,) if names is None else (version_id, names)
+        with raw.cursor(binary=True) as cur:
+            cur.execute(sql + " ORDER BY name, chunk_no", params)
+            return list(cur.fetchall())
     query = (
         select(ARRAYS.c.name, ARRAYS.c.dtype, ARRAYS.c.shape, ARRAYS.c.chunk_no, ARRAYS.c.data)
         .where(ARRAYS.c.version_id == version_id)
         .order_by(ARRAYS.c.name, ARRAYS.c.chunk_no)
     )
     if names is not None:
-        query = query.where(ARRAYS.c.name.in_(list(names)))
+        query = query.where(ARRAYS.c.name.in_(names))
+    return list(conn.execute(query))
+
+
+def load_arrays(
+    conn: Connection, version_id: int, names: Iterable[str] | None = None
+) -> dict[str, np.ndarray]:
+    """Every array of the version (or only ``names``, those present), decoded."""
+    wanted = None if names is None else list(names)
     parts: dict[str, list[bytes]] = {}
     meta: dict[str, tuple[str, list[int]]] = {}
-    for name, dtype, shape, chunk_no, data in conn.execute(query):
+    for name, dtype, shape, chunk_no, data in _chunk_rows(conn, version_id, wanted):
         chunks = parts.setdefault(name, [])
         if chunk_no != len(chunks):
             raise RuntimeError(f"array {name!r} of version {version_id} misses chunk {len(chunks)}")

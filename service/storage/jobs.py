@@ -28,9 +28,10 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
 
-from sqlalchemy import Connection, and_, or_, select, update
+from sqlalchemy import Connection, and_, case, or_, select, update
 
 from service.storage.models import Job
+from service.storage.types import utcnow
 
 JOBS = Job.__table__
 QUEUED, RUNNING, SUCCEEDED, FAILED, CANCELLED = (
@@ -219,6 +220,15 @@ def finish(
     return conn.execute(update(JOBS).where(condition).values(**values)).rowcount == 1
 
 
+def _queued_unless_cancelled(now: datetime) -> dict[str, Any]:
+    """Back to the queue, or cancelled if a cancel was asked for while it ran (the claim
+    of a queued job would otherwise forget the request)."""
+    return {
+        "state": case((JOBS.c.cancel_requested.is_(True), CANCELLED), else_=QUEUED),
+        "finished_at": case((JOBS.c.cancel_requested.is_(True), now), else_=None),
+    }
+
+
 def requeue(
     conn: Connection,
     lease: Lease,
@@ -231,8 +241,7 @@ def requeue(
 ) -> bool:
     """Put the job back in the queue (fenced). Without ``count_attempt`` (a worker shutting
     down cleanly) the attempt is given back."""
-    values: dict[str, Any] = {
-        "state": QUEUED,
+    values: dict[str, Any] = _queued_unless_cancelled(utcnow()) | {
         "lease_owner": None,
         "lease_expires_at": None,
         "not_before": not_before,
@@ -270,7 +279,7 @@ def reap(
     if not_before is None:
         values |= {"state": FAILED, "finished_at": now}
     else:
-        values |= {"state": QUEUED, "not_before": not_before}
+        values |= _queued_unless_cancelled(now) | {"not_before": not_before}
     return conn.execute(update(JOBS).where(condition).values(**values)).rowcount == 1
 
 

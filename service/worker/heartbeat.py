@@ -19,7 +19,7 @@ from types import TracebackType
 
 from sqlalchemy.orm import Session, sessionmaker
 
-from service.pipeline.build_run import StageClock
+from service.pipeline.stage_clock import StageClock
 from service.storage import jobs
 from service.storage.jobs import Lease
 from service.storage.types import utcnow

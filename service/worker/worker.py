@@ -32,13 +32,14 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from service.config import Settings
 from service.errors import BuildFailedError, TidemapError
-from service.pipeline.build_run import StageClock, collect_garbage, jsonable, run_build
+from service.pipeline.build_run import collect_garbage, jsonable, run_build
 from service.pipeline.index_content_types import (
     BuildCancelled,
     BuildInterrupted,
     ComputeFn,
     LeaseLost,
 )
+from service.pipeline.stage_clock import StageClock
 from service.storage import jobs
 from service.storage.jobs import Lease
 from service.storage.types import utcnow

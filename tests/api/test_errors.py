@@ -286,6 +286,28 @@ READ_CASES: list[Case] = [
 ]
 
 
+BUILDS = f"{NEWS}/builds"
+BUILD_CASES: list[Case] = [
+    ("unknown build", "GET", f"{BUILDS}/999", {}, 404, "not_found"),
+    ("malformed build id", "GET", f"{BUILDS}/abc", {}, 422, "invalid_input"),
+    ("build id zero", "GET", f"{BUILDS}/0", {}, 422, "invalid_input"),
+    ("build id too large", "GET", f"{BUILDS}/{10**20}", {}, 422, "invalid_input"),
+    ("cancel unknown build", "DELETE", f"{BUILDS}/999", {}, 404, "not_found"),
+    ("cancel malformed build id", "DELETE", f"{BUILDS}/x1", {}, 422, "invalid_input"),
+    ("builds of unknown collection", "GET", "/v1/collections/nope/builds", {}, 404, None),
+    ("build of unknown collection", "GET", "/v1/collections/nope/builds/1", {}, 404, None),
+    ("start in unknown collection", "POST", "/v1/collections/nope/builds", {}, 404, None),
+    ("cancel in unknown collection", "DELETE", "/v1/collections/nope/builds/1", {}, 404, None),
+    ("start with a bad name", "POST", "/v1/collections/No%20Way/builds", {}, 422, None),
+    ("index of unknown collection", "GET", "/v1/collections/nope/index", {}, 404, "not_found"),
+    ("index before any build", "GET", f"{NEWS}/index", {}, 409, "no_index"),
+    ("builds cursor garbage", "GET", f"{BUILDS}?cursor=not-a-cursor!", {}, 400, "bad_cursor"),
+    ("builds limit zero", "GET", f"{BUILDS}?limit=0", {}, 422, "invalid_input"),
+    ("builds limit huge", "GET", f"{BUILDS}?limit=100000", {}, 422, "invalid_input"),
+    ("wrong method on builds", "PUT", BUILDS, {}, 405, "method_not_allowed"),
+]
+
+
 def _populate(client: TestClient, keys: dict[str, str]) -> None:
     new_collection(client, keys, "news")
     new_collection(client, keys, "other")
@@ -314,8 +336,8 @@ def _run(client: TestClient, keys: dict[str, str], engine: Engine, cases: list[C
 
 @pytest.mark.parametrize(
     "cases",
-    [DOCUMENT_CASES, BATCH_CASES, COLLECTION_CASES, READ_CASES],
-    ids=["document", "batch", "collection", "read"],
+    [DOCUMENT_CASES, BATCH_CASES, COLLECTION_CASES, READ_CASES, BUILD_CASES],
+    ids=["document", "batch", "collection", "read", "build"],
 )
 def test_bad_input_is_refused_and_changes_nothing(
     small_client: TestClient, keys: dict[str, str], engine: Engine, cases: list[Case]

@@ -41,7 +41,5 @@ def test_empty_rows_agree_with_scikit_learn():
     assert result.empty_rows.size > 0
     reference = TfidfTransformer(sublinear_tf=True, smooth_idf=True, norm="l2")
     expected = reference.fit_transform(counts[:, result.vocabulary]).toarray()
-    np.testing.assert_array_equal(
-        result.empty_rows, np.flatnonzero(~np.any(expected != 0, axis=1))
-    )
+    np.testing.assert_array_equal(result.empty_rows, np.flatnonzero(~np.any(expected != 0, axis=1)))
     np.testing.assert_allclose(result.matrix.toarray(), expected, atol=1e-6)

@@ -21,7 +21,11 @@ def test_select_vocabulary_applies_bounds_and_cap_with_index_ties():
     df = np.array([5, 1, 3, 3, 10, 3, 2])
     # n_docs 10, max_df 0.5 -> df <= 5; min_df 2 -> drops column 1; column 4 too common.
     assert select_vocabulary(df, 10, min_df=2, max_df=0.5, vocab_size=100).tolist() == [
-        0, 2, 3, 5, 6,
+        0,
+        2,
+        3,
+        5,
+        6,
     ]
     # Cap 3: df 5 first, then the three df-3 columns tie and the lower indices win.
     assert select_vocabulary(df, 10, min_df=2, max_df=0.5, vocab_size=3).tolist() == [0, 2, 3]
