@@ -350,6 +350,25 @@ def cmd_bench_ingest(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_bench_build(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from service.bench.build import format_report, run_build_benchmark
+
+    source = None if args.input is None else Path(args.input)
+    if source is not None and not source.is_file():
+        raise argparse.ArgumentTypeError(f"--input {source} is not a file")
+    report = run_build_benchmark(
+        args.docs,
+        input_path=source,
+        compare=args.compare,
+        seed=args.seed,
+        progress=print_progress,
+    )
+    print(json.dumps(report) if args.json else format_report(report))
+    return 0
+
+
 def print_progress(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
@@ -457,6 +476,21 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--database", help="SQLAlchemy URL (default a temporary SQLite file)")
     p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p = command(bench, "build", cmd_bench_build, "Time the geometry of a build, no database.")
+    p.epilog = (
+        "Weighting, k-NN graph, spectrum and groups of invented term counts (or of the "
+        "first --docs documents of a JSONL file with text and optional title), at the "
+        "default map settings. Input preparation is timed apart. Peak RSS is the process's."
+    )
+    p.add_argument("--docs", type=_positive, default=10_000, help="documents (default 10000)")
+    p.add_argument("--input", metavar="FILE.jsonl", help="a JSONL file instead of invented counts")
+    p.add_argument(
+        "--compare",
+        action="store_true",
+        help="also time scikit-learn's spectral_embedding on the largest component",
+    )
+    p.add_argument("--seed", type=int, default=0, help="seed of the invented counts (default 0)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     from service.cli_build import register
 
