@@ -14,6 +14,7 @@ from service.errors import ConflictError, NotFoundError
 from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.collections import check_name
 from service.pipeline.documents import decode_cursor, encode_cursor
+from service.pipeline.formatting import iso
 from service.storage import jobs
 from service.storage import repository as repo
 from service.storage.models import Collection, IndexVersion
@@ -22,10 +23,6 @@ from service.storage.types import utcnow
 COLLECTIONS = Collection.__table__
 VERSIONS = IndexVersion.__table__
 TRIGGERS = ("api", "cli", "schedule")
-
-
-def _iso(value: datetime | None) -> str | None:
-    return value.isoformat() if value is not None else None
 
 
 def job_view(row: Any, collection: str, version_number: int | None = None) -> dict[str, Any]:
@@ -46,14 +43,14 @@ def job_view(row: Any, collection: str, version_number: int | None = None) -> di
         "statistics": dict(row.statistics or {}),
         "version": version_number,
         "lease": (
-            {"owner": row.lease_owner, "expires_at": _iso(row.lease_expires_at)}
+            {"owner": row.lease_owner, "expires_at": iso(row.lease_expires_at)}
             if row.lease_owner
             else None
         ),
-        "retry_after": _iso(row.not_before) if row.state == jobs.QUEUED else None,
-        "created_at": _iso(row.created_at),
-        "started_at": _iso(row.started_at),
-        "finished_at": _iso(row.finished_at),
+        "retry_after": iso(row.not_before) if row.state == jobs.QUEUED else None,
+        "created_at": iso(row.created_at),
+        "started_at": iso(row.started_at),
+        "finished_at": iso(row.finished_at),
     }
 
 

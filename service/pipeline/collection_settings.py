@@ -7,6 +7,7 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from service.errors import InvalidInputError
+from service.pipeline.formatting import validation_details
 from service.text.tokenize import supported_languages
 
 
@@ -53,13 +54,6 @@ class CollectionSettings(BaseModel):
 TOKENISATION_FIELDS = frozenset({"language", "stemming"})
 
 
-def _validation_details(exc: ValidationError) -> list[dict[str, Any]]:
-    return [
-        {"field": ".".join(str(p) for p in err["loc"]) or "settings", "problem": err["msg"]}
-        for err in exc.errors(include_url=False, include_input=False)
-    ]
-
-
 def parse_settings(raw: Any) -> CollectionSettings:
     """Validate a settings object from a request; raise InvalidInputError with details."""
     if raw is None:
@@ -69,7 +63,9 @@ def parse_settings(raw: Any) -> CollectionSettings:
     try:
         return CollectionSettings.model_validate(raw)
     except ValidationError as exc:
-        raise InvalidInputError("invalid collection settings", _validation_details(exc)) from exc
+        raise InvalidInputError(
+            "invalid collection settings", validation_details(exc, "settings")
+        ) from exc
 
 
 def merge_settings(current: CollectionSettings, patch: Any) -> CollectionSettings:

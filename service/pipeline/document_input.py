@@ -12,6 +12,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, Field, StrictStr, ValidationError, field_validator
 
 from service.errors import InvalidInputError, PayloadTooLargeError
+from service.pipeline.formatting import validation_details
 
 # Ids travel in URL paths: no slashes, no spaces, no percent signs.
 ID_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._:@~-]*$")
@@ -134,10 +135,7 @@ def parse_document(
     try:
         payload = DocumentPayload.model_validate(raw)
     except ValidationError as exc:
-        details = [
-            {"field": ".".join(str(p) for p in err["loc"]), "problem": err["msg"]}
-            for err in exc.errors(include_url=False, include_input=False)
-        ]
+        details = validation_details(exc)
         fields = ", ".join(d["field"] for d in details)
         raise InvalidInputError(f"invalid document ({fields})", details) from exc
     if external_id is not None:

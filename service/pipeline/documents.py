@@ -12,7 +12,6 @@ import json
 from collections import Counter
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field, replace
-from datetime import datetime
 from functools import lru_cache
 from itertools import chain
 from typing import Any
@@ -23,6 +22,7 @@ from sqlalchemy.orm import Session
 from service.errors import InvalidInputError, MalformedRequestError, NotFoundError, TidemapError
 from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.document_input import DocumentInput, check_external_id, parse_document
+from service.pipeline.formatting import iso
 from service.storage import repository as repo
 from service.storage.codecs import decode_counts, decode_many, encode_many
 from service.storage.terms import add_terms, apply_df_deltas
@@ -304,17 +304,13 @@ def _summary(row: Any) -> dict[str, Any]:
         "id": row.external_id,
         "title": row.title,
         "metadata": row.metadata,
-        "published_at": _iso(row.published_at),
+        "published_at": iso(row.published_at),
         "content_hash": row.content_hash,
         "n_terms": row.n_terms,
         "status": "no_terms" if row.n_terms == 0 else "ok",
-        "created_at": _iso(row.created_at),
-        "updated_at": _iso(row.updated_at),
+        "created_at": iso(row.created_at),
+        "updated_at": iso(row.updated_at),
     }
-
-
-def _iso(value: datetime | None) -> str | None:
-    return value.isoformat() if value is not None else None
 
 
 def get_document(session: Session, collection: str, external_id: str) -> dict[str, Any]:
