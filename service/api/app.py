@@ -6,9 +6,10 @@ from fastapi import FastAPI
 from sqlalchemy import Engine
 
 from service.api.errors import install_error_handlers
-from service.api.routes import builds, collections, documents, health
+from service.api.routes import builds, collections, documents, health, queries
 from service.config import Settings
 from service.pipeline.keys import KeyVerifier
+from service.pipeline.live_index import LiveIndex
 from service.pipeline.version_cache import VersionCache
 from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory
@@ -32,9 +33,12 @@ def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
     app.state.version_cache = VersionCache(
         app.state.session_factory, check_seconds=settings.version_check_seconds
     )
+    # What queries see: the active version, minus deletions, plus provisional documents.
+    app.state.live_index = LiveIndex(engine, app.state.version_cache)
     install_error_handlers(app)
     app.include_router(health.router)
     app.include_router(collections.router)
     app.include_router(documents.router)
     app.include_router(builds.router)
+    app.include_router(queries.router)
     return app

@@ -7,9 +7,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.geometry.diffusion import DiffusionMap
-from service.geometry.types import FloatArray
+from service.geometry.types import FloatArray, IntArray
 
-__all__ = ["DistanceResult", "diffusion_distance", "distances_from"]
+__all__ = [
+    "DistanceResult",
+    "diffusion_distance",
+    "distances_from",
+    "distances_to",
+    "distances_to_point",
+]
 
 Spectrum = DiffusionMap | tuple[FloatArray, FloatArray, FloatArray]
 
@@ -148,4 +154,73 @@ def distances_from(
         at most ``sqrt(values**2 + bounds)``.
     """
     value2, bound = _squared_parts(dm, x, slice(None), t, n_coordinates)
+    return np.sqrt(value2), bound
+
+
+def distances_to_point(
+    eigenvalues: FloatArray,
+    psi_x: FloatArray,
+    psi_ys: FloatArray,
+    inv_pi_x: float,
+    inv_pi_ys: FloatArray,
+    t: float,
+    n_coordinates: int,
+    smallest_eigenvalue: float,
+) -> tuple[FloatArray, FloatArray]:
+    """Truncated diffusion distances from one point given by its eigenvector values.
+
+    For points that need not be graph vertices (a Nystrom-extended draft, see
+    service.geometry.nystrom), where completeness ``sum_k psi_k(x)^2 = 1/pi(x)`` does not
+    hold: the left-out part is bounded by the computed-but-not-kept terms plus
+    ``mu^(2t) (1/pi(x) + 1/pi(y))``, the form of DESIGN.md's bound (Coifman & Lafon
+    2006), with ``mu`` as in :func:`diffusion_distance`. With an estimated ``pi(x)`` the
+    bound is an estimate too.
+
+    Parameters
+    ----------
+    eigenvalues : ndarray (K,)
+        Trivial eigenvalue first.
+    psi_x : ndarray (K,)
+    psi_ys : ndarray (p, K)
+    inv_pi_x : float
+        ``1 / pi(x)`` (``inf`` gives an infinite bound).
+    inv_pi_ys : ndarray (p,)
+    t, n_coordinates
+        As in :func:`diffusion_distance`.
+    smallest_eigenvalue : float
+        Lower estimate of the spectrum (bounds the eigenvalues not computed).
+
+    Returns
+    -------
+    values, bounds : ndarrays (p,)
+        Truncated distances, and bounds on the left-out part of the squared distances.
+    """
+    lam = np.asarray(eigenvalues, dtype=np.float64)
+    k = lam.size
+    m = n_coordinates
+    if not 1 <= m <= k - 1:
+        raise ValueError(f"n_coordinates must lie in [1, {k - 1}], got {m}")
+    if not t > 0:
+        raise ValueError(f"t must be > 0, got {t}")
+    delta2 = (np.asarray(psi_ys, dtype=np.float64)[:, 1:k] - np.asarray(psi_x)[1:k]) ** 2
+    weights = np.abs(lam[1:]) ** (2 * t)
+    value2 = delta2[:, :m] @ weights[:m]
+    known = delta2[:, m:] @ weights[m:]
+    mu = max(abs(float(lam[-1])), abs(min(smallest_eigenvalue, float(lam[-1]))))
+    rest = mu ** (2 * t) * (inv_pi_x + np.asarray(inv_pi_ys, dtype=np.float64))
+    return np.sqrt(value2), known + rest
+
+
+def distances_to(
+    dm: Spectrum, x: int, ys: IntArray, t: float, n_coordinates: int
+) -> tuple[FloatArray, FloatArray]:
+    """Truncated diffusion distances from node ``x`` to the nodes ``ys``, with bounds.
+
+    As :func:`distances_from`, for a chosen set of nodes (cost O(len(ys) k)).
+    """
+    psi = _unpack(dm)[1]
+    ys = np.asarray(ys, dtype=np.int64)
+    if ys.size and (ys.min() < 0 or ys.max() >= psi.shape[0]):
+        raise ValueError(f"node index outside [0, {psi.shape[0]})")
+    value2, bound = _squared_parts(dm, x, ys, t, n_coordinates)
     return np.sqrt(value2), bound

@@ -110,6 +110,7 @@ def compute_index(
         "component": corpus.component,
         "eigenvalues": corpus.eigenvalues,
         "smallest_eigenvalue": corpus.smallest_eigenvalue,
+        "alpha_degree_sum": corpus.alpha_degree_sum,
         "psi": corpus.psi,
         "pi": corpus.pi,
         "degrees": corpus.degrees,

@@ -108,6 +108,7 @@ class CorpusMap:
     degrees: np.ndarray  # (n_v,) raw kernel degrees (Nystrom needs them)
     n_coordinates: np.ndarray  # (C,) coordinates kept at the default t
     smallest_eigenvalue: np.ndarray  # (C,) lower estimate of each component's spectrum
+    alpha_degree_sum: np.ndarray  # (C,) sum of the alpha-normalised degrees (pi's denominator)
     sigma_floor: float  # the bandwidth floor; a new point's bandwidth gets the same
     group: np.ndarray  # (n,) int64 local group label, -1 for none
     groups: list[GroupSummary]
@@ -209,6 +210,7 @@ def map_corpus(
         degrees=geo.degrees,
         n_coordinates=geo.n_coordinates,
         smallest_eigenvalue=np.array([dm.smallest_eigenvalue for dm in geo.maps]),
+        alpha_degree_sum=np.array([float(dm.alpha_degrees.sum()) for dm in geo.maps]),
         sigma_floor=float(geo.affinity.sigma_floor),
         group=group,
         groups=groups,

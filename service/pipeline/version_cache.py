@@ -110,14 +110,28 @@ class VersionCache:
                 self._entries[collection] = entry
             return entry
 
-    def get(self, collection: str) -> LoadedVersion:
-        """The collection's active version; NotFoundError / ConflictError (no index yet)."""
+    def get(self, collection: str, expected_version_id: int | None = None) -> LoadedVersion:
+        """The collection's active version; NotFoundError / ConflictError (no index yet).
+
+        ``expected_version_id``: the caller has just read the active version's id; a
+        cached version of another id is then checked at once, not after check_seconds.
+        """
         entry = self._entry(collection)
+
+        def fresh(version: LoadedVersion | None) -> bool:
+            if version is None:
+                return False
+            if expected_version_id is not None:
+                return version.version_id == expected_version_id
+            return self._clock() - entry.checked_at < self._check_seconds
+
         current = entry.version
-        if current is not None and self._clock() - entry.checked_at < self._check_seconds:
+        if fresh(current):
+            assert current is not None
             return current
         with entry.lock:  # one loader per collection; the others wait and reuse its result
-            if entry.version is not None and self._clock() - entry.checked_at < self._check_seconds:
+            if fresh(entry.version):
+                assert entry.version is not None
                 return entry.version
             with self._factory() as session:
                 found = session.execute(

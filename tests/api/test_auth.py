@@ -36,6 +36,9 @@ EXPECTED_SCOPE: dict[tuple[str, str], str] = {
     ("GET", "/v1/collections/{collection}/builds/{build_id}"): "read",
     ("DELETE", "/v1/collections/{collection}/builds/{build_id}"): "write",
     ("GET", "/v1/collections/{collection}/index"): "read",
+    ("GET", "/v1/collections/{collection}/documents/{document_id}/neighbors"): "read",
+    ("POST", "/v1/collections/{collection}/similar"): "read",
+    ("GET", "/v1/collections/{collection}/distance"): "read",
 }
 PUBLIC = {("GET", "/healthz")}
 

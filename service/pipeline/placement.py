@@ -1,0 +1,145 @@
+"""Placing a text that is not in the graph: a draft, or a document newer than the index.
+
+The Nystrom extension of DESIGN.md, geometry item 4: the text is weighted with the
+version's vocabulary and idf, its k nearest indexed documents by cosine are found, the
+self-tuning kernel gives its weights with the graph's bandwidth rule (its own sigma is
+the distance to its k-th neighbour, at least the graph's floor), and
+``service.geometry.nystrom.extend`` turns those weights and the stored degrees into
+``psi_k(x)``. Neighbours at cosine <= 0 get no weight: the graph gives no edge to pairs
+at distance >= 1 either (service.pipeline.mapping_graph).
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from numpy.typing import NDArray
+
+from service.errors import InvalidInputError
+from service.geometry.kernel import bandwidth, kernel_weights
+from service.geometry.nystrom import extend
+from service.pipeline.query_view import QueryView
+from service.text.weighting import transform_counts
+
+__all__ = ["Placement", "counts_row", "place_row", "text_row"]
+
+
+@dataclass(frozen=True, eq=False)
+class Placement:
+    """Where a new text lands. ``component`` is None when it lands nowhere mapped."""
+
+    row: sp.csr_matrix  # (1, V) its TF-IDF row, unit length
+    component: int | None
+    psi: NDArray[np.float64] | None  # (K,) extended eigenvector values, [0] == 1
+    pi_estimate: float | None  # the stationary weight it would have in the graph
+    neighbor_vertices: NDArray[np.int64]  # its nearest vertices by cosine, best first
+    neighbor_cosines: NDArray[np.float64]
+
+
+def _row(view: QueryView, columns: list[int], counts: list[int]) -> sp.csr_matrix:
+    V = int(view.version.arrays["idf"].size)
+    raw = sp.csr_matrix(
+        (
+            np.asarray(counts, dtype=np.int32),
+            np.asarray(columns, dtype=np.int64),
+            [0, len(columns)],
+        ),
+        shape=(1, V),
+    )
+    raw.sum_duplicates()
+    return transform_counts((np.arange(V), view.version.arrays["idf"]), raw)
+
+
+def text_row(view: QueryView, text: str) -> sp.csr_matrix:
+    """A text's TF-IDF row in the version's vocabulary (zero when it shares no term)."""
+    counted: Counter[str] = view.tokenizer.count(text)
+    columns, counts = [], []
+    for term, count in counted.items():
+        col = view.term_column.get(term)
+        if col is not None:
+            columns.append(col)
+            counts.append(count)
+    return _row(view, columns, counts)
+
+
+def counts_row(
+    view: QueryView, term_ids: NDArray[np.int64], counts: NDArray[np.int32]
+) -> sp.csr_matrix:
+    """A stored document's TF-IDF row from its term-count blob (global term ids)."""
+    columns, kept = [], []
+    for tid, count in zip(term_ids.tolist(), counts.tolist(), strict=True):
+        col = view.global_term_column.get(tid)
+        if col is not None:
+            columns.append(col)
+            kept.append(count)
+    return _row(view, columns, kept)
+
+
+def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
+    """Nystrom placement of one TF-IDF row; raises InvalidInputError when it has no term."""
+    if row.nnz == 0:
+        raise InvalidInputError(
+            "the text has no term of the index's vocabulary (after stop words), so it "
+            "cannot be placed on the map",
+            code="no_terms",
+        )
+    X = view.vertex_tfidf_csc
+    cols = row.indices
+    cosines = np.asarray(X[:, cols] @ row.data.astype(np.float64)).ravel()
+    k = view.neighbors
+    n_v = cosines.size
+    take = min(k, n_v)
+    top = np.argpartition(-cosines, take - 1)[:take] if take < n_v else np.arange(n_v)
+    top_all = top[np.lexsort((top, -cosines[top]))]  # best first, ties by vertex id
+    top = top_all[cosines[top_all] > 0]
+    if top.size == 0:
+        raise InvalidInputError(
+            "the text shares no term with any indexed document, so it has no neighbours",
+            code="no_neighbors",
+        )
+    cos = cosines[top]
+    d = np.clip(1.0 - cos, 0.0, None)
+    # Its bandwidth counts the k nearest whatever their cosine, as the graph does (a
+    # neighbour at cosine <= 0 is at distance >= 1).
+    all_d = np.clip(1.0 - cosines[top_all], 0.0, None)
+    sigma_x = bandwidth(
+        np.pad(all_d, (0, k - all_d.size), constant_values=1.0), k, view.sigma_floor
+    )
+    weights = kernel_weights(d, sigma_x, view.sigma[top])
+    comps = view.component[top]
+    mapped = comps >= 0
+    if not mapped.any():
+        return Placement(row, None, None, None, top.astype(np.int64), cos)
+    # The component that holds most of its kernel weight; the extension is within one.
+    totals = np.bincount(comps[mapped], weights=weights[mapped])
+    c = int(np.argmax(totals))
+    inside = comps == c
+    dm = view.diffusion_map(c)
+    local = view.local[top[inside]]
+    w = weights[inside]
+    psi = extend(dm, local, w)
+    return Placement(
+        row=row,
+        component=c,
+        psi=psi,
+        pi_estimate=_pi_estimate(view, c, dm.degrees[local], w),
+        neighbor_vertices=top.astype(np.int64),
+        neighbor_cosines=cos,
+    )
+
+
+def _pi_estimate(
+    view: QueryView, c: int, degrees: NDArray[np.float64], weights: NDArray[np.float64]
+) -> float | None:
+    """pi(x) = d_alpha(x) / sum_j d_alpha(j): the weight the point would have if added to
+    the graph without changing anyone else's degree (an estimate, for its bounds)."""
+    total = view.alpha_degree_sum(c)
+    if total is None or total <= 0:
+        return None
+    a = view.alpha
+    q_x = float(weights.sum())
+    d_alpha = float((weights * degrees**-a).sum()) * q_x**-a
+    return d_alpha / total if d_alpha > 0 else None
