@@ -26,6 +26,9 @@ from service.text.weighting import transform_counts
 
 __all__ = ["Placement", "counts_row", "place_row", "text_row"]
 
+# Cosine at which two unit TF-IDF rows count as the same text (float32 rows: rounding).
+_SAME_TEXT = 1.0 - 1e-6
+
 
 @dataclass(frozen=True, eq=False)
 class Placement:
@@ -118,6 +121,12 @@ def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
     c = int(np.argmax(totals))
     inside = comps == c
     dm = view.diffusion_map(c)
+    if cos[0] >= _SAME_TEXT and comps[0] == c:
+        # The same TF-IDF row as an indexed vertex: the build gives exact duplicates one
+        # vertex, so the text gets that vertex's place (the extension would move it one
+        # diffusion step away, since the graph has no self-loops).
+        v = int(view.local[top[0]])
+        return Placement(row, c, dm.psi[v].copy(), float(dm.pi[v]), top.astype(np.int64), cos)
     local = view.local[top[inside]]
     w = weights[inside]
     psi = extend(dm, local, w)

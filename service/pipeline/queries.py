@@ -10,6 +10,7 @@ upper bound that follows, and the cosine similarity of the TF-IDF vectors.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 from typing import Any
 
@@ -19,6 +20,7 @@ from numpy.typing import NDArray
 from sqlalchemy import Engine, select
 
 from service.errors import InvalidInputError, NotFoundError
+from service.geometry.coordinate_index import HnswSearch, measure_recall
 from service.geometry.distances import distances_to, distances_to_point
 from service.geometry.nearest import ExactSearch
 from service.pipeline.live_index import Live
@@ -156,12 +158,46 @@ def point_coordinates(live: Live, point: QueryPoint, t: float) -> NDArray[np.flo
     return psi_x[1 : m + 1] * coordinate_scale(view.eigenvalues(c), t, m)
 
 
-def _search(view: QueryView, c: int, t: float) -> ExactSearch:
-    if t == view.default_t:
-        return view._cached(("search", c, t), lambda: ExactSearch(view.coordinates(c, t)))  # type: ignore[no-any-return]
-    lam, psi, _ = view.spectrum(c)
-    m = view.n_coordinates(c)
-    return ExactSearch(psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :])
+# Components with at least this many vertices are searched through an HNSW index once
+# it is built (in the background; exact search answers meanwhile). Below it the exact
+# scan costs under ~0.5 ms (measured: 1-2 ms at 100,000 x 40 on this machine).
+INDEXED_MIN_VERTICES = 20_000
+
+
+class _BackgroundIndex:
+    """An HNSW index built in a thread; ``ready`` is None until it is usable."""
+
+    def __init__(self, exact: ExactSearch) -> None:
+        self.ready: HnswSearch | None = None
+        self.recall: float | None = None
+        self.error: str | None = None
+        threading.Thread(
+            target=self._build, args=(exact,), name="coordinate-index", daemon=True
+        ).start()
+
+    def _build(self, exact: ExactSearch) -> None:
+        try:
+            index = HnswSearch(exact.points)
+            self.recall = round(measure_recall(index, exact), 4)
+            self.ready = index
+        except Exception as exc:
+            self.error = f"{type(exc).__name__}: {exc}"
+
+
+def _search(view: QueryView, c: int, t: float) -> tuple[ExactSearch | HnswSearch, dict[str, Any]]:
+    """The search structure for component ``c`` at ``t``, and how it searches."""
+    if t != view.default_t:
+        lam, psi, _ = view.spectrum(c)
+        m = view.n_coordinates(c)
+        exact = ExactSearch(psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :])
+        return exact, {"method": "exact"}
+    exact = view._cached(("search", c, t), lambda: ExactSearch(view.coordinates(c, t)))
+    if exact.size < INDEXED_MIN_VERTICES:
+        return exact, {"method": "exact"}
+    holder: _BackgroundIndex = view._cached(("hnsw", c, t), lambda: _BackgroundIndex(exact))
+    if holder.ready is None:
+        return exact, {"method": "exact"}
+    return holder.ready, {"method": "hnsw", "recall": holder.recall}
 
 
 @dataclass(frozen=True)
@@ -171,13 +207,15 @@ class _Candidate:
     extra: int | None  # provisional index
 
 
-def _candidates(live: Live, point: QueryPoint, k: int, t: float) -> list[_Candidate]:
+def _candidates(
+    live: Live, point: QueryPoint, k: int, t: float
+) -> tuple[list[_Candidate], dict[str, Any]]:
     """At least ``k`` visible documents nearest the point (approximate order by d^2)."""
     view = live.view
     c = point.component
     assert c is not None
     y = point_coordinates(live, point, t)
-    search = _search(view, c, t)
+    search, how = _search(view, c, t)
     members = view.members[c]
     want = k + 1 + 16
     found: list[_Candidate] = []
@@ -199,7 +237,7 @@ def _candidates(live: Live, point: QueryPoint, k: int, t: float) -> list[_Candid
             if j != point.extra:
                 found.append(_Candidate(dist, None, j))
     found.sort(key=lambda cand: (cand.d2, cand.row if cand.row is not None else -1))
-    return found[: max(k, 0)]
+    return found[: max(k, 0)], how
 
 
 def _psi_of(live: Live, cand: _Candidate) -> NDArray[np.float64]:
@@ -308,11 +346,14 @@ def _finite(value: float) -> float | None:
     return float(value) if np.isfinite(value) else None
 
 
-def related(live: Live, point: QueryPoint, k: int, t: float) -> list[dict[str, Any]]:
-    """The ``k`` documents nearest the point in diffusion space, nearest first."""
+def related(
+    live: Live, point: QueryPoint, k: int, t: float
+) -> tuple[list[dict[str, Any]], dict[str, Any]]:
+    """The ``k`` documents nearest the point in diffusion space, nearest first, and how
+    they were searched (``{"method": "exact"}`` or ``"hnsw"`` with its measured recall)."""
     if point.component is None:
-        return []
-    cands = _candidates(live, point, k, t)
+        return [], {"method": "none"}
+    cands, how = _candidates(live, point, k, t)
     values, bounds = _measure(live, point, cands, t)
     cosines = _cosines(live, point, cands)
     order = np.lexsort((np.arange(len(cands)), values))
@@ -330,7 +371,7 @@ def related(live: Live, point: QueryPoint, k: int, t: float) -> list[dict[str, A
                 "provisional": provisional,
             }
         )
-    return out
+    return out, how
 
 
 def _header(live: Live, t: float) -> dict[str, Any]:
@@ -354,7 +395,7 @@ def neighbors(
     t_value = _check_t(live.view, t)
     point = resolve(engine, live, external_id)
     out = _header(live, t_value) | {"k": k, "document": _point_out(point)}
-    out["neighbors"] = related(live, point, k, t_value)
+    out["neighbors"], out["search"] = related(live, point, k, t_value)
     if point.component is None:
         out["note"] = "the document is isolated (its component is too small to map)"
     return out
@@ -365,11 +406,13 @@ def similar(live: Live, text: str, title: str | None, k: int, t: float | None) -
     t_value = _check_t(live.view, t)
     point = draft_point(live, text, title)
     coords = point_coordinates(live, point, t_value)
+    found, how = related(live, point, k, t_value)
     out = _header(live, t_value) | {
         "k": k,
         "component": point.component,
         "coords": [float(v) for v in coords],
-        "neighbors": related(live, point, k, t_value),
+        "neighbors": found,
+        "search": how,
     }
     if point.component is None:
         out["note"] = "the draft's nearest documents are isolated: it lands on no mapped component"
