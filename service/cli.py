@@ -309,6 +309,34 @@ def load_demo(engine: Engine, settings: Settings) -> tuple[BatchSummary, dict[st
     return summary, keys
 
 
+def map_page_url(base: str, collection: str, read_key: str) -> str:
+    """The map page of ``collection``; the key rides in the fragment, which browsers do not
+    send to the server."""
+    from urllib.parse import quote
+
+    return f"{base}/ui/map?collection={quote(collection)}#key={quote(read_key)}"
+
+
+def open_when_listening(url: str, port: int, timeout: float = 15.0) -> None:
+    """Open ``url`` in a browser once something listens on 127.0.0.1:``port``: uvicorn
+    starts listening only after this returns. A daemon thread; gives up after ``timeout``."""
+    import socket
+    import threading
+    import webbrowser
+
+    def run() -> None:
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            try:
+                with socket.create_connection(("127.0.0.1", port), timeout=0.5):
+                    webbrowser.open(url)
+                    return
+            except OSError:
+                time.sleep(0.2)
+
+    threading.Thread(target=run, name="open-map-page", daemon=True).start()
+
+
 def cmd_demo(args: argparse.Namespace) -> int:
     # The demo database is the demo's own: bring it up to date whatever its state.
     settings = load_settings(
@@ -327,12 +355,15 @@ def cmd_demo(args: argparse.Namespace) -> int:
         print("(keys are not stored and cannot be shown again; earlier demo keys are revoked)")
         print(f"API:        {url}/docs")
         print(f"try:        curl -H 'Authorization: Bearer {keys['read']}' {url}/v1/collections")
+        print(f"map:        {map_page_url(url, DEMO_COLLECTION, keys['read'])}")
         if args.no_serve:
             return 0
         import uvicorn
 
         from service.api.app import create_app
 
+        if args.open:
+            open_when_listening(map_page_url(url, DEMO_COLLECTION, keys["read"]), settings.port)
         uvicorn.run(create_app(settings, engine), host="127.0.0.1", port=settings.port)
     return 0
 
@@ -377,6 +408,34 @@ def cmd_bench_build(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_bench_query(args: argparse.Namespace) -> int:
+    from service.bench.query import ENDPOINT_NAMES, LoadOptions, format_report, run_query_benchmark
+
+    endpoints = ENDPOINT_NAMES if args.endpoints is None else tuple(args.endpoints.split(","))
+    unknown = set(endpoints) - set(ENDPOINT_NAMES)
+    if unknown:
+        known = ", ".join(ENDPOINT_NAMES)
+        raise argparse.ArgumentTypeError(
+            f"--endpoints: {', '.join(sorted(unknown))} not in {known}"
+        )
+    if args.reuse and args.database is None:
+        raise argparse.ArgumentTypeError("--reuse needs --database (a file or URL to keep)")
+    options = LoadOptions(args.concurrency, args.seconds, args.warmup_seconds, args.seed)
+    report = run_query_benchmark(
+        n_docs=args.docs,
+        database_url=args.database,
+        reuse=args.reuse,
+        endpoints=endpoints,
+        options=options,
+        server_workers=args.server_workers,
+        loop=args.loop,
+        http=args.http,
+        progress=print_progress,
+    )
+    print(json.dumps(report) if args.json else format_report(report))
+    return 0
+
+
 def print_progress(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
@@ -388,6 +447,13 @@ def _positive(text: str) -> int:
     value = int(text)
     if value < 1:
         raise argparse.ArgumentTypeError(f"must be at least 1, got {value}")
+    return value
+
+
+def _positive_float(text: str) -> float:
+    value = float(text)
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be more than 0, got {value}")
     return value
 
 
@@ -470,6 +536,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = command(sub, "demo", cmd_demo, "Load an invented archive and serve it on 127.0.0.1.")
     p.add_argument("--port", type=_port, default=8000, help="port (default 8000)")
     p.add_argument("--no-serve", action="store_true", help="load and print the keys, then exit")
+    p.add_argument(
+        "--open", action="store_true", help="open the map page in a browser once it is served"
+    )
     p.add_argument("--database", default=DEMO_DATABASE, help=f"default {DEMO_DATABASE}")
 
     bench = group("bench", "Benchmarks (speed, not quality).")
@@ -506,6 +575,59 @@ def build_parser() -> argparse.ArgumentParser:
         "(load, geometry, store, publish) and loading the published version",
     )
     p.add_argument("--database", help="with --from-database: a database URL (default: temp SQLite)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p = command(bench, "query", cmd_bench_query, "Query latency per endpoint under load.")
+    p.epilog = (
+        "Stores --docs invented documents in the collection bench-query (replaced) and builds "
+        "its index, starts uvicorn on 127.0.0.1 with a read key, then loads each endpoint "
+        "(neighbors, similar, distance, clusters, document, index; those the server does not "
+        "serve are skipped) from another process: --concurrency keep-alive connections for "
+        "--seconds after a warm-up. Prints requests, errors, rps, p50_ms and p99_ms per "
+        "endpoint. Storing and building 100,000 documents takes a few minutes: with --reuse "
+        "and --database, a database that already holds them with an index is used as it is."
+    )
+    p.add_argument("--docs", type=_positive, default=100_000, help="documents (default 100000)")
+    p.add_argument(
+        "--database",
+        "--database-url",
+        dest="database",
+        help="SQLAlchemy URL (default a temporary SQLite file)",
+    )
+    p.add_argument(
+        "--reuse",
+        action="store_true",
+        help="with --database: skip storing and building when bench-query already holds "
+        "the same --docs documents (same --seed) with a published index",
+    )
+    p.add_argument(
+        "--seconds", type=_positive_float, default=10.0, help="per endpoint (default 10)"
+    )
+    p.add_argument(
+        "--concurrency", type=_positive, default=32, help="open connections (default 32)"
+    )
+    p.add_argument(
+        "--warmup-seconds",
+        type=float,
+        default=2.0,
+        help="load before the measured phase, per endpoint (default 2)",
+    )
+    p.add_argument(
+        "--server-workers", type=_positive, default=1, help="uvicorn --workers (default 1)"
+    )
+    p.add_argument("--endpoints", metavar="A,B", help="a comma-separated subset (default all)")
+    p.add_argument(
+        "--loop",
+        choices=("auto", "asyncio", "uvloop"),
+        default="auto",
+        help="uvicorn --loop (default auto: uvloop if installed)",
+    )
+    p.add_argument(
+        "--http",
+        choices=("auto", "h11", "httptools"),
+        default="auto",
+        help="uvicorn --http (default auto: httptools if installed)",
+    )
+    p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     from service.cli_build import register
 

@@ -8,7 +8,8 @@ from pathlib import Path
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1] / "service"
-THIRD_PARTY_PURE = {"numpy", "scipy", "sklearn", "threadpoolctl", "Stemmer"}
+# faiss: HNSW search over diffusion coordinates (service/geometry/coordinate_index.py).
+THIRD_PARTY_PURE = {"numpy", "scipy", "sklearn", "threadpoolctl", "Stemmer", "faiss"}
 
 # package -> the packages of ours it may import
 ALLOWED: dict[str, set[str]] = {

@@ -6,7 +6,17 @@ from fastapi import FastAPI
 from sqlalchemy import Engine
 
 from service.api.errors import install_error_handlers
-from service.api.routes import builds, collections, documents, health, queries
+from service.api.routes import (
+    builds,
+    clusters,
+    collections,
+    documents,
+    health,
+    map_export,
+    map_page,
+    paths,
+    queries,
+)
 from service.config import Settings
 from service.pipeline.keys import KeyVerifier
 from service.pipeline.live_index import LiveIndex
@@ -40,5 +50,9 @@ def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
     app.include_router(collections.router)
     app.include_router(documents.router)
     app.include_router(builds.router)
+    app.include_router(map_page.router)
     app.include_router(queries.router)
+    app.include_router(paths.router)
+    app.include_router(clusters.router)
+    app.include_router(map_export.router)
     return app

@@ -20,16 +20,18 @@ import resource
 import tempfile
 import time
 from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 from sqlalchemy.engine import make_url
+from sqlalchemy.orm import Session, sessionmaker
 
 from service.bench.ingest import invented_vocabulary
 from service.bench.synthetic_text import synthetic_counts
 from service.errors import NotFoundError
-from service.pipeline.build_run import run_build
+from service.pipeline.build_run import BuildOutcome, run_build
 from service.pipeline.builds import enqueue_build
 from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.collections import create_collection, delete_collection
@@ -101,6 +103,62 @@ def _peak_rss_mb() -> float:
     return round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0, 1)
 
 
+@dataclass(frozen=True)
+class StoredBuild:
+    outcome: BuildOutcome
+    seconds_ingest: float
+    seconds_build: float
+    peak_rss_mb_before_build: float
+
+
+def store_and_build(
+    factory: sessionmaker[Session],
+    collection: str,
+    docs: list[dict[str, Any]],
+    *,
+    compute: ComputeFn | None = None,
+    say: Progress = lambda _m: None,
+) -> StoredBuild:
+    """Replace ``collection`` by ``docs`` (upsert shape), then queue, claim and run one build.
+
+    Pass ``docs`` without keeping a reference: the list is dropped before the build, so the
+    peak before the build covers inventing and storing the text only.
+    """
+    with factory() as session:
+        try:
+            delete_collection(session, collection)
+        except NotFoundError:
+            session.rollback()
+        create_collection(session, collection)
+        say(f"storing {len(docs)} documents in {session.get_bind().dialect.name}")
+        started = time.perf_counter()
+        upsert_batch(
+            session,
+            collection,
+            enumerate(docs),
+            max_text_bytes=1 << 20,
+            chunk_size=1000,
+            report_all=False,
+        )
+        seconds_ingest = time.perf_counter() - started
+        del docs
+        job = enqueue_build(session, collection, trigger="cli", max_attempts=1).job
+        row = jobs.claim(session.connection(), owner="bench", lease_seconds=3600, now=utcnow())
+        session.commit()
+    assert row is not None and int(row.id) == job["id"], "another job was claimed"
+    say("building")
+    rss_before_build = _peak_rss_mb()  # the invented text and the ingest
+    started = time.perf_counter()
+    outcome = run_build(
+        factory,
+        Lease(int(row.id), "bench", int(row.attempts)),
+        int(row.collection_id),
+        StageClock(),
+        compute=compute,
+    )
+    return StoredBuild(outcome, seconds_ingest, time.perf_counter() - started, rss_before_build)
+
+
 def run_build_benchmark(
     *,
     n_docs: int,
@@ -122,43 +180,11 @@ def run_build_benchmark(
                 upgrade(engine)
             factory = make_session_factory(engine)
             say(f"inventing {n_docs} documents (seed {seed})")
-            docs = invented_texts(n_docs, seed)
-            with factory() as session:
-                try:
-                    delete_collection(session, COLLECTION)
-                except NotFoundError:
-                    session.rollback()
-                create_collection(session, COLLECTION)
-                say(f"storing them in {make_url(url).get_backend_name()}")
-                started = time.perf_counter()
-                upsert_batch(
-                    session,
-                    COLLECTION,
-                    enumerate(docs),
-                    max_text_bytes=1 << 20,
-                    chunk_size=1000,
-                    report_all=False,
-                )
-                seconds_ingest = time.perf_counter() - started
-                del docs
-                job = enqueue_build(session, COLLECTION, trigger="cli", max_attempts=1).job
-                row = jobs.claim(
-                    session.connection(), owner="bench", lease_seconds=3600, now=utcnow()
-                )
-                session.commit()
-            assert row is not None and int(row.id) == job["id"], "another job was claimed"
-            say("building")
-            rss_before_build = _peak_rss_mb()  # the invented text and the ingest
-            clock = StageClock()
-            started = time.perf_counter()
-            outcome = run_build(
-                factory,
-                Lease(int(row.id), "bench", int(row.attempts)),
-                int(row.collection_id),
-                clock,
-                compute=compute,
+            stored = store_and_build(
+                factory, COLLECTION, invented_texts(n_docs, seed), compute=compute, say=say
             )
-            seconds_total = time.perf_counter() - started
+            outcome, seconds_ingest = stored.outcome, stored.seconds_ingest
+            seconds_total, rss_before_build = stored.seconds_build, stored.peak_rss_mb_before_build
             timings = outcome.timings
             say("loading the version as an API process would")
             loaded = VersionCache(factory, check_seconds=0).get(COLLECTION)

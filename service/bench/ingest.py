@@ -21,7 +21,7 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
@@ -148,16 +148,22 @@ def _cpu_seconds(pid: int) -> float | None:
 
 @contextmanager
 def running_server(
-    database_url: str, log_dir: Path
+    database_url: str,
+    log_dir: Path,
+    *,
+    uvicorn_args: Sequence[str] = (),
+    env: Mapping[str, str] | None = None,
 ) -> Iterator[tuple[subprocess.Popen[bytes], str]]:
-    """A uvicorn subprocess serving the app factory; yields (process, base URL)."""
+    """A uvicorn subprocess serving the app factory; yields (process, base URL).
+
+    ``uvicorn_args`` are added to the command line, ``env`` to the environment."""
     port = _free_port()
-    env = os.environ | {"TIDEMAP_DATABASE_URL": database_url}
+    env = os.environ | {"TIDEMAP_DATABASE_URL": database_url} | dict(env or {})
     log = (log_dir / f"server-{port}.log").open("wb")
     command = [
         sys.executable, "-m", "uvicorn", "service.api.factory:app_from_environment",
         "--factory", "--host", "127.0.0.1", "--port", str(port),
-        "--log-level", "warning", "--no-access-log",
+        "--log-level", "warning", "--no-access-log", *uvicorn_args,
     ]  # fmt: skip
     proc = subprocess.Popen(command, env=env, stdout=log, stderr=subprocess.STDOUT)
     base = f"http://127.0.0.1:{port}"

@@ -21,9 +21,18 @@ eigenpair ``(1, top)``. Its spectrum lies in ``[-1, 1]``. The solvers:
     Measured (``service.bench.spectrum_solvers``, 15-NN graphs, 41 pairs): 0.8 s at
     10,000 nodes, 4.6 s at 30,000, 26 s at 100,000 on 2 cores, residuals < 1e-10.
 ``shift-invert``
-    ARPACK on ``(A - sigma I)^-1`` with a SuperLU factorisation; exact and fast while
-    the factor's fill-in stays small (about 30,000 nodes of a 15-NN graph), unusable
-    beyond (factor minutes and gigabytes at 100,000 nodes).
+    ARPACK on ``(sigma I - A)^-1``, ``sigma = 1 + 1e-5``, with a SuperLU factorisation;
+    its cost hardly depends on how clustered the top is, but on the factor's fill-in:
+    small on components of many weakly joined topics (text archives: 7.9 M entries,
+    5 s for 40 pairs at 42,378 nodes), large on one compact topic or a low-dimensional
+    point cloud (minutes and gigabytes at 100,000 nodes of `service.bench.graphs`).
+``adaptive``
+    What ``auto`` runs: ``dense`` up to ``DENSE_MAX`` nodes, then ``shift-invert`` when
+    the coarse lower bound of the k-th eigenvalue lies within ``SHIFT_INVERT_GAP`` of 1,
+    ``chebyshev`` otherwise (see `_adaptive_choice` for the measurements).
+
+Every Krylov solver runs with BLAS on ``KRYLOV_BLAS_THREADS`` thread(s): its BLAS calls
+are vector-sized, and on shared cores waiting threads cost more than they give.
 ``arpack``
     Plain ARPACK on ``A`` with the top vector deflated; slow on clustered spectra and at a
     loose tolerance can miss an eigenvalue of a cluster (measured).
@@ -45,10 +54,14 @@ import scipy.linalg as sla
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import LinearOperator, eigsh, lobpcg, splu
+from threadpoolctl import threadpool_limits
 
 from service.geometry.types import FloatArray, IntArray, RngLike, as_generator
 
-SOLVERS = ("auto", "dense", "chebyshev", "shift-invert", "arpack", "lobpcg")
+SOLVERS = ("auto", "adaptive", "dense", "chebyshev", "shift-invert", "arpack", "lobpcg")
+# What ``solver="auto"`` means: "adaptive" (the measured rule of `leading_eigenpairs`) or
+# "chebyshev" (the rule before it: dense up to DENSE_MAX, chebyshev beyond).
+AUTO_SOLVER = "adaptive"
 DENSE_MAX = 1200  # auto uses LAPACK up to here: measured 0.3 s at 1,200 nodes, as chebyshev
 COARSE_MAX = 1500  # the aggregation stops below this many nodes
 GUARD_FRACTION = 0.5  # cut = coarse theta_{k + guard}, guard = max(10, k * fraction)
@@ -260,11 +273,20 @@ def _dense(op: SymOperator, k: int) -> tuple[FloatArray, FloatArray]:
     return _rayleigh_ritz(op, vectors[:, ::-1][:, 1:])
 
 
+def _guard(k: int) -> int:
+    return max(10, int(GUARD_FRACTION * k))
+
+
 def _chebyshev(
-    op: SymOperator, k: int, tol: float, rng: np.random.Generator, lam_min: float
+    op: SymOperator,
+    k: int,
+    tol: float,
+    rng: np.random.Generator,
+    lam_min: float,
+    theta: FloatArray | None = None,
 ) -> tuple[FloatArray, FloatArray]:
-    guard = max(10, int(GUARD_FRACTION * k))
-    theta = coarse_ritz_values(op, k + guard, COARSE_MAX)
+    if theta is None:
+        theta = coarse_ritz_values(op, k + _guard(k), COARSE_MAX)
     cut = float(theta[-1])
     lo = lam_min - 0.01
     if not lo < cut < 1.0:
@@ -302,7 +324,7 @@ def _shift_invert(
     # sigma just above the top eigenvalue 1: M = sigma I - A_s is positive definite, so the
     # symmetric-mode factorisation needs no pivoting, and the eigenvalues of A near 1 become
     # the largest, well separated eigenvalues 1 / (sigma - lambda) of the inverse.
-    sigma = 1.0 + 1e-3
+    sigma = 1.0 + SHIFT_INVERT_OFFSET
     n = op.n
     lu = splu(
         (sigma * sp.identity(n, format="csr") - op.sparse).tocsc(),
@@ -324,7 +346,9 @@ def _shift_invert(
     linop = LinearOperator((n, n), matvec=solve, dtype=np.float64)
     v0 = rng.standard_normal(n)
     v0 -= top * (top @ v0)
-    _, V = eigsh(linop, k=k - 1, which="LA", tol=tol, v0=v0)
+    # ARPACK stops at ||B v - mu v|| <= tol |mu| for B = M^-1, which bounds the residual
+    # on A only by about 2 tol: ask for more so that residuals stay near the other paths'.
+    _, V = eigsh(linop, k=k - 1, which="LA", tol=tol * SHIFT_INVERT_TOL_FACTOR, v0=v0)
     return _rayleigh_ritz(op, V)
 
 
@@ -357,7 +381,20 @@ _FALLBACKS = {
     "lobpcg": ("lobpcg", "chebyshev"),
     "dense": ("dense",),
 }
-SHIFT_INVERT_MAX = 40_000  # beyond this the SuperLU fill-in of a 15-NN graph explodes
+SHIFT_INVERT_MAX = 40_000  # fallback chains: beyond this SuperLU fill-in can explode
+# sigma = 1 + offset. Measured on a 42,378-node text component: 148 solves at 1e-5 against
+# 175 at 1e-3 (201 against 148 on a 16,336-node one), residuals below 1e-12 either way.
+SHIFT_INVERT_OFFSET = 1e-5
+SHIFT_INVERT_TOL_FACTOR = 1e-2  # ARPACK tolerance = tol * this (see `_shift_invert`)
+# The "adaptive" rule (see `leading_eigenpairs`): shift-invert first when the coarse lower
+# bound of the k-th eigenvalue is within SHIFT_INVERT_GAP of 1 and n is at most
+# SHIFT_INVERT_AUTO_MAX, chebyshev first otherwise.
+SHIFT_INVERT_GAP = 2e-2
+SHIFT_INVERT_AUTO_MAX = 60_000
+# BLAS threads inside the Krylov solvers. Their BLAS calls are vector-sized (dot products,
+# n x ncv products); measured on 2 shared cores, a 16,336-node shift-invert run spent 1.6 s
+# in ARPACK with the default threads and 0.45 s with one (threads wait on each other).
+KRYLOV_BLAS_THREADS = 1
 
 
 def leading_eigenpairs(
@@ -372,11 +409,14 @@ def leading_eigenpairs(
     k : int
         Number of eigenpairs including the top one; ``2 <= k <= op.n`` (``k >= n - 1``
         always uses the dense solver).
-    solver : {"auto", "dense", "chebyshev", "shift-invert", "arpack", "lobpcg"}
-        ``auto`` is ``dense`` up to ``DENSE_MAX`` nodes and ``chebyshev`` beyond. A solver
-        that raises or returns a residual above ``tol`` is followed by the next in its
-        fallback chain (``chebyshev`` -> ``shift-invert`` (small graphs only) ->
-        ``arpack``).
+    solver : {"auto", "adaptive", "dense", "chebyshev", "shift-invert", "arpack", "lobpcg"}
+        ``auto`` is ``AUTO_SOLVER``: ``adaptive`` (``dense`` up to ``DENSE_MAX`` nodes,
+        then ``shift-invert`` on a clustered top of the spectrum, ``chebyshev`` on a
+        spread one; see `_adaptive_choice`) or ``chebyshev`` (``dense`` up to
+        ``DENSE_MAX``, ``chebyshev`` beyond). A solver that raises or returns a residual
+        above ``tol`` is followed by the next in its fallback chain (``chebyshev`` ->
+        ``shift-invert`` (small graphs only) -> ``arpack``; a chosen ``shift-invert`` ->
+        ``chebyshev`` -> ``arpack``).
     tol : float, default 1e-8
         Accepted residual ``max_k ||A v_k - lambda_k v_k||`` of unit vectors; also the
         ARPACK / LOBPCG convergence tolerance.
@@ -402,13 +442,59 @@ def leading_eigenpairs(
     if not 2 <= k <= op.n:
         raise ValueError(f"need 2 <= k <= n, got k={k}, n={op.n}")
     gen = as_generator(rng)
-    if solver == "auto" or k >= op.n - 1:  # Krylov solvers need k < n - 1
-        solver = "dense" if op.n <= DENSE_MAX or k >= op.n - 1 else "chebyshev"
-    chain = [s for s in _FALLBACKS[solver] if s != "shift-invert" or op.n <= SHIFT_INVERT_MAX] or [
-        "arpack"
-    ]
-    if solver == "shift-invert":
-        chain = list(_FALLBACKS[solver])  # asked for explicitly: try it whatever the size
+    automatic = solver in ("auto", "adaptive")
+    if solver == "auto":
+        solver = AUTO_SOLVER
+    if k >= op.n - 1 or (automatic and op.n <= DENSE_MAX):  # Krylov solvers need k < n - 1
+        solver = "dense"
+    if solver == "dense":
+        return _run_chain(op, k, ["dense"], tol, gen, None)
+    with threadpool_limits(limits=KRYLOV_BLAS_THREADS, user_api="blas"):
+        theta = None
+        if solver == "adaptive":
+            solver, theta = _adaptive_choice(op, k)
+        chain = [s for s in _FALLBACKS[solver] if s != "shift-invert" or op.n <= SHIFT_INVERT_MAX]
+        if solver == "shift-invert":
+            chain = list(_FALLBACKS[solver])  # chosen or asked for: try it whatever the size
+            if theta is not None:
+                chain = ["shift-invert", "chebyshev", "arpack"]
+        return _run_chain(op, k, chain or ["arpack"], tol, gen, theta)
+
+
+def _adaptive_choice(op: SymOperator, k: int) -> tuple[str, FloatArray | None]:
+    """The first solver of the "adaptive" rule, with the coarse bounds it computed.
+
+    Lanczos on the Chebyshev filter needs more steps the closer the wanted eigenvalues lie
+    to 1 (its convergence depends on their gaps relative to the whole spectrum), while
+    shift-invert takes about the same ~150 solves whatever the gaps and pays for one sparse
+    factorisation, whose fill-in is small on graphs of weakly joined groups and large on one
+    compact topic (measured: 7.9 M factor entries for a 42,378-node component of many
+    topics, 4.7 M and 5 s to factor a 12,160-node single topic). A clustered top of the
+    spectrum is what such weakly joined groups give, so the coarse lower bound
+    ``1 - theta_k`` (cheap; Chebyshev reuses it) decides. Measured on the components of
+    the 10,000 / 30,000 / 100,000 document benchmark builds (`service.bench.build`),
+    BLAS on one thread: ``1 - theta_k`` of 3e-3 to 6e-3 gave shift-invert 0.8-0.9 s vs
+    Chebyshev 2.1-3.3 s (16,336 nodes); 3e-2 to 0.8 gave Chebyshev 0.5-1.4 s vs
+    shift-invert 1.7-6.8 s (2,000-12,000 nodes).
+    """
+    try:
+        theta = coarse_ritz_values(op, k + _guard(k), COARSE_MAX)
+    except RuntimeError:
+        return "chebyshev", None  # aggregation stalled: the legacy chain handles it
+    clustered = 1.0 - float(theta[min(k, theta.size) - 1]) <= SHIFT_INVERT_GAP
+    if clustered and op.n <= SHIFT_INVERT_AUTO_MAX:
+        return "shift-invert", theta
+    return "chebyshev", theta
+
+
+def _run_chain(
+    op: SymOperator,
+    k: int,
+    chain: list[str],
+    tol: float,
+    gen: np.random.Generator,
+    theta: FloatArray | None,
+) -> Eigenpairs:
     lam_min = _smallest_eigenvalue(op, gen)
     failures: list[str] = []
     for name in chain:
@@ -416,7 +502,7 @@ def leading_eigenpairs(
             if name == "dense":
                 values, vectors = _dense(op, k)
             elif name == "chebyshev":
-                values, vectors = _chebyshev(op, k, tol, gen, lam_min)
+                values, vectors = _chebyshev(op, k, tol, gen, lam_min, theta)
             elif name == "shift-invert":
                 values, vectors = _shift_invert(op, k, tol, gen)
             elif name == "arpack":

@@ -118,12 +118,15 @@ def map_points(
     )
 
 
-def graph_affinity(knn: KnnGraph, unrelated: float | None = None) -> AffinityGraph:
+def graph_affinity(
+    knn: KnnGraph, unrelated: float | None = None, sigma_floor: float | None = None
+) -> AffinityGraph:
     """The self-tuning affinity of the k-NN graph, without edges at distance ``>= unrelated``.
 
-    Pass ``unrelated=1.0`` for cosine graphs: see `_drop_unrelated`.
+    Pass ``unrelated=1.0`` for cosine graphs: see `_drop_unrelated`. ``sigma_floor``: a
+    stored build's floor, to rebuild its graph (None: computed, as a build does).
     """
-    affinity = self_tuning_affinity(knn)
+    affinity = self_tuning_affinity(knn, sigma_floor=sigma_floor)
     return affinity if unrelated is None else _drop_unrelated(affinity, knn, unrelated)
 
 

@@ -39,12 +39,17 @@ EXPECTED_SCOPE: dict[tuple[str, str], str] = {
     ("GET", "/v1/collections/{collection}/documents/{document_id}/neighbors"): "read",
     ("POST", "/v1/collections/{collection}/similar"): "read",
     ("GET", "/v1/collections/{collection}/distance"): "read",
+    ("GET", "/v1/collections/{collection}/path"): "read",
+    ("GET", "/v1/collections/{collection}/clusters"): "read",
+    ("GET", "/v1/collections/{collection}/clusters/{group_id}"): "read",
+    ("PATCH", "/v1/collections/{collection}/clusters/{group_id}"): "write",
+    ("GET", "/v1/collections/{collection}/map"): "read",
 }
 PUBLIC = {("GET", "/healthz")}
 
 # Values for path parameters: the walker creates the collection and the document first,
 # so every request names things that exist.
-PATH_VALUES = {"collection": "walk", "document_id": "doc-1", "build_id": "1"}
+PATH_VALUES = {"collection": "walk", "document_id": "doc-1", "build_id": "1", "group_id": "0"}
 BODIES: dict[str, dict[str, Any]] = {
     "PUT": {"json": {"title": "Walk", "text": "Harbour walk along the tide line."}},
     "POST": {"json": [document(2)]},
