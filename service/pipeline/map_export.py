@@ -27,15 +27,12 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from sqlalchemy import Engine, select
 
 from service.errors import InvalidInputError
+from service.pipeline.clusters import _names as group_names  # editors' names, one query
 from service.pipeline.live_index import Live, ProvisionalDoc
 from service.pipeline.queries import _check_t, _header
 from service.pipeline.query_view import QueryView, coordinate_scale
-from service.storage.models import ClusterName
-
-NAMES = ClusterName.__table__
 
 DIMS = (2, 3)
 FORMATS = ("json", "csv")
@@ -46,7 +43,16 @@ LABEL_TERMS = 5  # label terms per group in the header
 _FLOAT = "%.9g"
 _encode = json.encoder.encode_basestring  # type: ignore[attr-defined]  # C speedup, '"..."'
 
-__all__ = ["CHUNK", "DIMS", "FORMATS", "MapExport", "csv_chunks", "json_chunks", "prepare_map"]
+__all__ = [
+    "CHUNK",
+    "DIMS",
+    "FORMATS",
+    "MapExport",
+    "csv_chunks",
+    "group_names",
+    "json_chunks",
+    "prepare_map",
+]
 
 
 @dataclass(frozen=True, eq=False)
@@ -80,15 +86,6 @@ class MapExport:
     @property
     def filename(self) -> str:
         return f"{self.header['collection']}-map-v{self.header['version']}.csv"
-
-
-def group_names(engine: Engine, collection_id: int) -> dict[int, str]:
-    """Editors' names of the collection's stable groups (one query)."""
-    with engine.connect() as conn:
-        rows = conn.execute(
-            select(NAMES.c.stable_id, NAMES.c.name).where(NAMES.c.collection_id == collection_id)
-        ).all()
-    return {int(stable_id): name for stable_id, name in rows}
 
 
 def _check(dims: int, fmt: str) -> None:
