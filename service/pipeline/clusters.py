@@ -23,9 +23,6 @@ What is computed when
 
 from __future__ import annotations
 
-import base64
-import binascii
-import json
 import threading
 import weakref
 from dataclasses import dataclass
@@ -37,7 +34,9 @@ import numpy as np
 from numpy.typing import NDArray
 from sqlalchemy import Engine, delete, insert, select, update
 
-from service.errors import InvalidInputError, MalformedRequestError, NotFoundError
+from service.errors import InvalidInputError, NotFoundError
+from service.pipeline.documents import decode_cursor_fields
+from service.pipeline.documents import encode_cursor as encode_document_cursor
 from service.pipeline.formatting import iso
 from service.pipeline.index_content_types import STABLE_GROUP, GroupRecord
 from service.pipeline.live_index import Live
@@ -280,27 +279,18 @@ def list_groups(engine: Engine, live: Live) -> dict[str, Any]:
 
 
 def encode_cursor(after: int, provisional: bool) -> str:
-    raw = json.dumps({"after": after, "provisional": provisional}, separators=(",", ":"))
-    return base64.urlsafe_b64encode(raw.encode()).decode().rstrip("=")
+    return encode_document_cursor(after, provisional=provisional)
+
+
+def _check_provisional(value: dict[str, Any]) -> None:
+    if not isinstance(value["provisional"], bool):
+        raise ValueError(value["provisional"])
 
 
 def decode_cursor(cursor: str) -> tuple[int, bool]:
     """(last internal id given out, whether it was a provisional member); 400 otherwise."""
-    try:
-        padded = cursor + "=" * (-len(cursor) % 4)
-        value = json.loads(base64.urlsafe_b64decode(padded.encode("ascii")))
-        after, provisional = value["after"], value["provisional"]
-        if not isinstance(after, int) or isinstance(after, bool) or not 0 <= after < 2**63:
-            raise ValueError(after)
-        if not isinstance(provisional, bool):
-            raise ValueError(provisional)
-        return after, provisional
-    except (ValueError, KeyError, TypeError, UnicodeError, binascii.Error) as exc:
-        raise MalformedRequestError(
-            "the cursor is not one this service gave out; start again without a cursor",
-            {"cursor": cursor[:100]},
-            code="bad_cursor",
-        ) from exc
+    value = decode_cursor_fields(cursor, _check_provisional)
+    return int(value["after"]), bool(value["provisional"])
 
 
 def _iso_micros(value: int) -> str | None:

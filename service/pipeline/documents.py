@@ -10,7 +10,7 @@ import base64
 import binascii
 import json
 from collections import Counter
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from itertools import chain
@@ -325,12 +325,17 @@ def get_document(session: Session, collection: str, external_id: str) -> dict[st
     return _summary(row) | {"text": row.text}
 
 
-def encode_cursor(last_id: int) -> str:
-    raw = json.dumps({"after": last_id}, separators=(",", ":")).encode()
+def encode_cursor(last_id: int, **fields: Any) -> str:
+    """An opaque page cursor: the last id given out, plus any ``fields`` (JSON values)."""
+    raw = json.dumps({"after": last_id, **fields}, separators=(",", ":")).encode()
     return base64.urlsafe_b64encode(raw).decode().rstrip("=")
 
 
-def decode_cursor(cursor: str) -> int:
+def decode_cursor_fields(
+    cursor: str, check: Callable[[dict[str, Any]], None] | None = None
+) -> dict[str, Any]:
+    """The fields of a cursor from `encode_cursor`; ``check`` may raise ValueError on the
+    other fields. MalformedRequestError (400, bad_cursor) for anything not given out here."""
     try:
         padded = cursor + "=" * (-len(cursor) % 4)
         value = json.loads(base64.urlsafe_b64decode(padded.encode("ascii")))
@@ -338,13 +343,19 @@ def decode_cursor(cursor: str) -> int:
         # Ids are 64-bit: a larger value would overflow the query parameter.
         if not isinstance(after, int) or isinstance(after, bool) or not 0 <= after < 2**63:
             raise ValueError(after)
-        return after
+        if check is not None:
+            check(value)
+        return dict(value)
     except (ValueError, KeyError, TypeError, UnicodeError, binascii.Error) as exc:
         raise MalformedRequestError(
             "the cursor is not one this service gave out; start again without a cursor",
             {"cursor": cursor[:100]},
             code="bad_cursor",
         ) from exc
+
+
+def decode_cursor(cursor: str) -> int:
+    return int(decode_cursor_fields(cursor)["after"])
 
 
 def list_documents(

@@ -149,19 +149,11 @@ class LiveIndex:
         active, changes = int(found.active_version_id), int(found.change_count)
         entry = self._entry(collection)
         live = entry.live
-        if (
-            live is not None
-            and live.view.version.version_id == active
-            and live.change_count == changes
-        ):
+        if _is_current(live, active, changes):
             return live
         with entry.lock:
             live = entry.live
-            if (
-                live is not None
-                and live.view.version.version_id == active
-                and live.change_count == changes
-            ):
+            if _is_current(live, active, changes):
                 return live
             view = self._view(collection, active)
             entry.live = self._refresh(view, int(found.id), previous=live)
@@ -247,6 +239,13 @@ class LiveIndex:
     def forget(self, collection: str) -> None:
         with self._lock:
             self._entries.pop(collection, None)
+
+
+def _is_current(live: Live | None, active: int, changes: int) -> bool:
+    """Whether ``live`` answers for the active version at this change count."""
+    return (
+        live is not None and live.view.version.version_id == active and live.change_count == changes
+    )
 
 
 def _extras(provisional: list[ProvisionalDoc]) -> dict[int, ComponentExtras]:
