@@ -104,21 +104,11 @@ def cmd_serve(args: argparse.Namespace) -> int:
 
 
 def _serve_processes(settings: Settings, workers: int, log_level: str) -> None:
-    import uvicorn
+    from service.api.worker_pool import run_pool
 
-    # Each worker process builds its own app and engine from the same environment.
-    uvicorn.run(
-        "service.api.factory:app_from_environment",
-        factory=True,
-        host=settings.host,
-        port=settings.port,
-        workers=workers,
-        log_level=log_level,
-        # A worker imports the whole stack before it answers the supervisor's ping; the
-        # default 5 s is too short on a busy small machine and kills healthy workers.
-        timeout_worker_healthcheck=30,
-    )
-    return 0
+    # Each worker process builds its own app and engine from the same environment, and
+    # binds the port itself (SO_REUSEPORT), so the kernel spreads connections over them.
+    run_pool(workers, settings.host, settings.port, log_level=log_level)
 
 
 # --- db --------------------------------------------------------------------------------
@@ -436,6 +426,14 @@ def cmd_bench_query(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_bench_map(args: argparse.Namespace) -> int:
+    from service.bench.map_export import format_report, run_map_benchmark
+
+    report = run_map_benchmark(args.docs, seed=args.seed)
+    print(json.dumps(report) if args.json else format_report(report))
+    return 0
+
+
 def print_progress(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
@@ -612,7 +610,10 @@ def build_parser() -> argparse.ArgumentParser:
         help="load before the measured phase, per endpoint (default 2)",
     )
     p.add_argument(
-        "--server-workers", type=_positive, default=1, help="uvicorn --workers (default 1)"
+        "--server-workers",
+        type=_positive,
+        default=1,
+        help="API worker processes, as `serve --workers` (default 1)",
     )
     p.add_argument("--endpoints", metavar="A,B", help="a comma-separated subset (default all)")
     p.add_argument(
@@ -628,6 +629,17 @@ def build_parser() -> argparse.ArgumentParser:
         help="uvicorn --http (default auto: httptools if installed)",
     )
     p.add_argument("--seed", type=int, default=0, help="seed of the invented text (default 0)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p = command(bench, "map", cmd_bench_map, "Time writing the whole map, no database.")
+    p.epilog = (
+        "Writes GET .../map answers (JSON and CSV, 2 and 3 dims, the default t and t=3) "
+        "from an invented index of --docs documents held in memory, every byte consumed "
+        "and dropped. Prints seconds, body bytes and the peak memory Python allocated "
+        "above the index per case, for the first answer (which fills the per-component "
+        "caches the queries share) and for the repeats."
+    )
+    p.add_argument("--docs", type=_positive, default=100_000, help="documents (default 100000)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the invented index (default 0)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     from service.cli_build import register
 

@@ -6,6 +6,7 @@ from fastapi import FastAPI
 from sqlalchemy import Engine
 
 from service.api.errors import install_error_handlers
+from service.api.fast_path import FastPathCounts, QueryFastPath
 from service.api.routes import (
     builds,
     clusters,
@@ -25,8 +26,12 @@ from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory
 
 
-def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
-    """Build the app. Refuses (SchemaMismatchError) a database whose schema is not current."""
+def create_app(
+    settings: Settings, engine: Engine | None = None, *, fast_path: bool = True
+) -> FastAPI:
+    """Build the app. Refuses (SchemaMismatchError) a database whose schema is not current.
+
+    ``fast_path=False`` leaves out service.api.fast_path (tests compare the two)."""
     engine = engine or make_engine(settings.database_url)
     require_current(engine)
     app = FastAPI(
@@ -46,12 +51,16 @@ def create_app(settings: Settings, engine: Engine | None = None) -> FastAPI:
     # What queries see: the active version, minus deletions, plus provisional documents.
     app.state.live_index = LiveIndex(engine, app.state.version_cache)
     install_error_handlers(app)
+    app.state.fast_path = FastPathCounts()
+    if fast_path:
+        app.add_middleware(QueryFastPath)
+    # Routes are matched in order: the busiest first. No two patterns overlap.
+    app.include_router(queries.router)
     app.include_router(health.router)
     app.include_router(collections.router)
     app.include_router(documents.router)
     app.include_router(builds.router)
     app.include_router(map_page.router)
-    app.include_router(queries.router)
     app.include_router(paths.router)
     app.include_router(clusters.router)
     app.include_router(map_export.router)

@@ -6,6 +6,7 @@ from collections.abc import Callable, Iterator
 from typing import Any
 
 from fastapi import Depends, Request
+from fastapi.concurrency import run_in_threadpool
 from sqlalchemy.orm import Session, sessionmaker
 
 from service.config import Settings
@@ -36,14 +37,21 @@ def _bearer(request: Request) -> str:
     return token.strip()
 
 
+def _look_up(request: Request, verifier: KeyVerifier, token: str) -> str | None:
+    with session_factory(request)() as session:
+        return verifier.scope_of(session, token)
+
+
 def require(scope: str) -> Callable[..., Any]:
     """Dependency that lets a request through only with a key of at least ``scope``."""
 
-    def check(request: Request) -> str:
+    async def check(request: Request) -> str:
+        # Async, so a remembered key costs no thread hop; a look-up goes to a thread.
         token = _bearer(request)
         verifier: KeyVerifier = request.app.state.key_verifier
-        with session_factory(request)() as session:
-            granted = verifier.scope_of(session, token)
+        granted = verifier.cached_scope(token)
+        if granted is None:
+            granted = await run_in_threadpool(_look_up, request, verifier, token)
         if granted is None:
             raise AuthenticationError("the API key is unknown or revoked")
         if not scope_allows(granted, scope):

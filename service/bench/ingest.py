@@ -153,18 +153,28 @@ def running_server(
     *,
     uvicorn_args: Sequence[str] = (),
     env: Mapping[str, str] | None = None,
+    workers: int = 1,
 ) -> Iterator[tuple[subprocess.Popen[bytes], str]]:
     """A uvicorn subprocess serving the app factory; yields (process, base URL).
 
-    ``uvicorn_args`` are added to the command line, ``env`` to the environment."""
+    ``uvicorn_args`` (``--loop``, ``--http``) are added to the command line, ``env`` to the
+    environment. Several ``workers`` run as ``tidemap serve --workers`` runs them
+    (service.api.worker_pool): the yielded process is their supervisor."""
     port = _free_port()
     env = os.environ | {"TIDEMAP_DATABASE_URL": database_url} | dict(env or {})
     log = (log_dir / f"server-{port}.log").open("wb")
-    command = [
-        sys.executable, "-m", "uvicorn", "service.api.factory:app_from_environment",
-        "--factory", "--host", "127.0.0.1", "--port", str(port),
-        "--log-level", "warning", "--no-access-log", *uvicorn_args,
-    ]  # fmt: skip
+    if workers > 1:
+        command = [
+            sys.executable, "-m", "service.api.worker_pool", "--workers", str(workers),
+            "--host", "127.0.0.1", "--port", str(port),
+            "--log-level", "warning", "--no-access-log", *uvicorn_args,
+        ]  # fmt: skip
+    else:
+        command = [
+            sys.executable, "-m", "uvicorn", "service.api.factory:app_from_environment",
+            "--factory", "--host", "127.0.0.1", "--port", str(port),
+            "--log-level", "warning", "--no-access-log", *uvicorn_args,
+        ]  # fmt: skip
     proc = subprocess.Popen(command, env=env, stdout=log, stderr=subprocess.STDOUT)
     base = f"http://127.0.0.1:{port}"
     try:

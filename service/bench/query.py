@@ -6,8 +6,9 @@
    stored: they are the drafts sent to ``similar``, texts like the archive's but not in
    it. With ``reuse`` a database that already holds the same N documents with a
    published index skips storing and building.
-2. A read key is created and a uvicorn server (``--workers W``, no embedded worker) is
-   started on 127.0.0.1 (``service.bench.ingest.running_server``).
+2. A read key is created and a uvicorn server (W worker processes as ``tidemap serve
+   --workers W`` runs them, no embedded worker) is started on 127.0.0.1
+   (``service.bench.ingest.running_server``).
 3. For each endpoint of ENDPOINTS the server serves (read from its OpenAPI document),
    one request is sent alone (the first query of a process loads the index version),
    then another process (``service.bench.load_client``) runs a warm-up and the measured
@@ -242,8 +243,8 @@ def run_client(spec: LoadSpec, server_pid: int, log: Path) -> dict[str, Any]:
     used = {pid: cpu - cpu_before.get(pid, 0.0) for pid, cpu in cpu_after.items()}
     result["server_cpu_seconds"] = round(sum(used.values()), 3)
     if len(used) > 1:
-        # Several workers: connections are spread over them when accepted, not per
-        # request, so an uneven split shows here (in pid order, supervisor included).
+        # Several workers: the kernel spreads connections over them when accepted, not
+        # per request, so an uneven split shows here (in pid order, supervisor included).
         result["server_cpu_seconds_by_process"] = [round(used[pid], 3) for pid in sorted(used)]
     return result
 
@@ -349,8 +350,10 @@ def run_query_benchmark(
             }
             with read_key(factory) as key:
                 env = {"TIDEMAP_EMBEDDED_WORKER": "off"}
-                args = uvicorn_args(server_workers, stack)
-                with running_server(url, Path(tmp), uvicorn_args=args, env=env) as (proc, base):
+                args = uvicorn_args(stack)
+                with running_server(
+                    url, Path(tmp), uvicorn_args=args, env=env, workers=server_workers
+                ) as (proc, base):
                     wait_ready(base, key)
                     served = served_routes(base)
                     client_log = Path(tmp) / "client.log"

@@ -57,13 +57,8 @@ def server_stack(loop: str, http: str) -> dict[str, str]:
     }
 
 
-def uvicorn_args(workers: int, stack: dict[str, str]) -> list[str]:
-    args = ["--loop", stack["loop"], "--http", stack["http"]]
-    if workers > 1:
-        # As `tidemap serve`: a worker importing the whole stack on a busy machine needs
-        # longer than uvicorn's default 5 s to answer the supervisor.
-        args += ["--workers", str(workers), "--timeout-worker-healthcheck", "30"]
-    return args
+def uvicorn_args(stack: dict[str, str]) -> list[str]:
+    return ["--loop", stack["loop"], "--http", stack["http"]]
 
 
 def served_routes(base: str) -> set[tuple[str, str]]:

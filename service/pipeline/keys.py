@@ -94,13 +94,20 @@ class KeyVerifier:
         self._cache: dict[str, tuple[float, str]] = {}
         self._lock = threading.Lock()
 
+    def cached_scope(self, raw: str) -> str | None:
+        """The scope remembered for this key if it was verified less than ``ttl`` ago."""
+        with self._lock:
+            hit = self._cache.get(hash_key(raw))
+        if hit is not None and time.monotonic() - hit[0] < self._ttl:
+            return hit[1]
+        return None
+
     def scope_of(self, session: Session, raw: str) -> str | None:
+        cached = self.cached_scope(raw)
+        if cached is not None:
+            return cached
         digest = hash_key(raw)
         now = time.monotonic()
-        with self._lock:
-            hit = self._cache.get(digest)
-        if hit is not None and now - hit[0] < self._ttl:
-            return hit[1]
         scope = session.scalars(
             select(ApiKey.scope).where(ApiKey.key_hash == digest, ApiKey.revoked_at.is_(None))
         ).first()

@@ -24,7 +24,7 @@ from datetime import datetime
 
 import numpy as np
 from numpy.typing import NDArray
-from sqlalchemy import Engine, select
+from sqlalchemy import Engine, bindparam, select
 
 from service.errors import ConflictError, InvalidInputError, NotFoundError
 from service.pipeline.placement import Placement, counts_row, place_row
@@ -32,6 +32,7 @@ from service.pipeline.query_view import QueryView, build_query_view, coordinate_
 from service.pipeline.version_cache import VersionCache
 from service.storage.codecs import decode_counts
 from service.storage.models import Collection, Document, IndexVersion
+from service.storage.prepared_read import PreparedRead
 
 COLLECTIONS = Collection.__table__
 DOCUMENTS = Document.__table__
@@ -126,27 +127,41 @@ class LiveIndex:
         self._entries: dict[str, _Entry] = {}
         self._views: dict[int, QueryView] = {}
         self._lock = threading.Lock()
+        self._read_state = PreparedRead(
+            engine,
+            select(
+                COLLECTIONS.c.id, COLLECTIONS.c.active_version_id, COLLECTIONS.c.change_count
+            ).where(COLLECTIONS.c.name == bindparam("name")),
+        )
 
     def _entry(self, collection: str) -> _Entry:
         with self._lock:
             return self._entries.setdefault(collection, _Entry())
 
-    def get(self, collection: str) -> Live:
-        """The collection's live index; NotFoundError, or ConflictError before any build."""
-        with self._engine.connect() as conn:
-            found = conn.execute(
-                select(
-                    COLLECTIONS.c.id, COLLECTIONS.c.active_version_id, COLLECTIONS.c.change_count
-                ).where(COLLECTIONS.c.name == collection)
-            ).first()
+    def _state(self, collection: str) -> tuple[int, int, int]:
+        """(collection id, active version id, change count): one primary-key read."""
+        found = self._read_state.first(name=collection)
         if found is None:
             raise NotFoundError(
                 f"collection {collection!r} does not exist", {"collection": collection}
             )
-        if found.active_version_id is None:
+        collection_id, active, changes = found
+        if active is None:
             self._versions.get(collection)  # raises the no_index conflict with its advice
             raise ConflictError(f"collection {collection!r} has no index yet", code="no_index")
-        active, changes = int(found.active_version_id), int(found.change_count)
+        return int(collection_id), int(active), int(changes)
+
+    def peek(self, collection: str) -> Live | None:
+        """The live index if it is current, else None (then `get` must refresh it, which
+        may read documents or load a version: callers on an event loop hand that to a
+        thread). NotFoundError, or ConflictError before any build."""
+        _, active, changes = self._state(collection)
+        live = self._entry(collection).live
+        return live if _is_current(live, active, changes) else None
+
+    def get(self, collection: str) -> Live:
+        """The collection's live index; NotFoundError, or ConflictError before any build."""
+        collection_id, active, changes = self._state(collection)
         entry = self._entry(collection)
         live = entry.live
         if _is_current(live, active, changes):
@@ -156,7 +171,7 @@ class LiveIndex:
             if _is_current(live, active, changes):
                 return live
             view = self._view(collection, active)
-            entry.live = self._refresh(view, int(found.id), previous=live)
+            entry.live = self._refresh(view, collection_id, previous=live)
             return entry.live
 
     def _view(self, collection: str, active: int) -> QueryView:

@@ -22,7 +22,8 @@ from service.errors import InvalidInputError
 from service.geometry.kernel import bandwidth, kernel_weights
 from service.geometry.nystrom import extend
 from service.pipeline.query_view import QueryView
-from service.text.weighting import transform_counts
+from service.text.sparse_products import combine_columns
+from service.text.weighting import weight_row
 
 __all__ = ["Placement", "counts_row", "place_row", "text_row"]
 
@@ -43,17 +44,7 @@ class Placement:
 
 
 def _row(view: QueryView, columns: list[int], counts: list[int]) -> sp.csr_matrix:
-    V = int(view.version.arrays["idf"].size)
-    raw = sp.csr_matrix(
-        (
-            np.asarray(counts, dtype=np.int32),
-            np.asarray(columns, dtype=np.int64),
-            [0, len(columns)],
-        ),
-        shape=(1, V),
-    )
-    raw.sum_duplicates()
-    return transform_counts((np.arange(V), view.version.arrays["idf"]), raw)
+    return weight_row(np.asarray(columns, dtype=np.int64), counts, view.version.arrays["idf"])
 
 
 def text_row(view: QueryView, text: str) -> sp.csr_matrix:
@@ -89,9 +80,7 @@ def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
             "cannot be placed on the map",
             code="no_terms",
         )
-    X = view.vertex_tfidf_csc
-    cols = row.indices
-    cosines = np.asarray(X[:, cols] @ row.data.astype(np.float64)).ravel()
+    cosines = combine_columns(view.vertex_tfidf_csc, row.indices, row.data)
     k = view.neighbors
     n_v = cosines.size
     take = min(k, n_v)

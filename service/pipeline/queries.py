@@ -27,6 +27,7 @@ from service.pipeline.live_index import Live
 from service.pipeline.placement import Placement, place_row, text_row
 from service.pipeline.query_view import ISOLATED, NO_TERMS, QueryView, coordinate_scale
 from service.storage.models import Collection, Document
+from service.text.sparse_products import row_dots, row_entries
 
 DOCUMENTS = Document.__table__
 COLLECTIONS = Collection.__table__
@@ -218,26 +219,49 @@ def _candidates(
     search, how = _search(view, c, t)
     members = view.members[c]
     want = k + 1 + 16
-    found: list[_Candidate] = []
     while True:
         idx, d2 = search.search(y, want)
-        found = []
-        for local, dist in zip(idx.tolist(), d2.tolist(), strict=True):
-            for row in view.rows_of_vertex(int(members[local])).tolist():
-                if row != point.row and not live.hidden[row]:
-                    found.append(_Candidate(dist, row, None))
-        if len(found) >= k or want >= search.size:
+        rows, row_d2 = _visible_rows(live, members[idx], d2, point.row)
+        if rows.size >= k or want >= search.size:
             break
         want = min(search.size, want * 4)
+    extras: list[int] = []
+    extra_d2 = np.zeros(0)
     extra = live.extras.get(c)
     if extra is not None:
         coords = live.extra_coordinates(c, t)
-        d2x = ((coords - y[None, :]) ** 2).sum(axis=1)
-        for j, dist in zip(extra.docs, d2x.tolist(), strict=True):
-            if j != point.extra:
-                found.append(_Candidate(dist, None, j))
-    found.sort(key=lambda cand: (cand.d2, cand.row if cand.row is not None else -1))
-    return found[: max(k, 0)], how
+        keep = [i for i, j in enumerate(extra.docs) if j != point.extra]
+        extras = [extra.docs[i] for i in keep]
+        extra_d2 = ((coords[keep] - y[None, :]) ** 2).sum(axis=1)
+    # Nearest first; ties by row, provisional documents (no row) before rows.
+    all_d2 = np.concatenate([row_d2, extra_d2])
+    tie = np.concatenate([rows, np.full(len(extras), -1, dtype=np.int64)])
+    order = np.lexsort((tie, all_d2))[: max(k, 0)]
+    n_rows = rows.size
+    found = [
+        _Candidate(float(all_d2[i]), int(rows[i]), None)
+        if i < n_rows
+        else _Candidate(float(all_d2[i]), None, extras[i - n_rows])
+        for i in order.tolist()
+    ]
+    return found, how
+
+
+def _visible_rows(
+    live: Live, vertices: NDArray[np.int64], d2: NDArray[np.float64], exclude: int | None
+) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+    """The visible rows (documents) of these vertices, each with its vertex's d^2, in the
+    vertices' order; ``exclude`` (the query's own row) left out."""
+    view = live.view
+    starts = view.vertex_rows_indptr[vertices]
+    lengths = view.vertex_rows_indptr[vertices + 1] - starts
+    owner = np.repeat(np.arange(vertices.size), lengths)
+    offsets = np.arange(owner.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
+    rows = view.vertex_rows[starts[owner] + offsets]
+    keep = ~live.hidden[rows]
+    if exclude is not None:
+        keep &= rows != exclude
+    return rows[keep], d2[owner[keep]]
 
 
 def _psi_of(live: Live, cand: _Candidate) -> NDArray[np.float64]:
@@ -321,16 +345,20 @@ def _psi_of_point(live: Live, point: QueryPoint) -> NDArray[np.float64]:
 
 def _cosines(live: Live, point: QueryPoint, cands: list[_Candidate]) -> NDArray[np.float64]:
     view = live.view
-    x = point.tfidf(view)
+    if point.placement is not None:
+        x_cols, x_vals = point.placement.row.indices, point.placement.row.data
+    else:
+        assert point.row is not None
+        x_cols, x_vals = row_entries(view.tfidf, point.row)
     out = np.zeros(len(cands))
     rows = [i for i, cand in enumerate(cands) if cand.row is not None]
     if rows:
-        out[rows] = np.asarray(view.tfidf[[cands[i].row for i in rows]] @ x.T.toarray()).ravel()
+        out[rows] = row_dots(view.tfidf, [cands[i].row for i in rows], x_cols, x_vals)
     for i, cand in enumerate(cands):
         if cand.extra is not None:
             p = live.provisional[cand.extra].placement
             assert p is not None
-            out[i] = float((p.row @ x.T).toarray()[0, 0])
+            out[i] = float(row_dots(p.row, [0], x_cols, x_vals)[0])
     return np.clip(out, -1.0, 1.0)
 
 

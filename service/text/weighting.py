@@ -26,7 +26,7 @@ import scipy.sparse as sp
 
 from service.geometry.types import FloatArray, IntArray
 
-__all__ = ["TfidfResult", "fit_tfidf", "select_vocabulary", "transform_counts"]
+__all__ = ["TfidfResult", "fit_tfidf", "select_vocabulary", "transform_counts", "weight_row"]
 
 
 @dataclass(frozen=True)
@@ -243,6 +243,26 @@ def transform_counts(
             f"column {vocabulary[-1]}"
         )
     return _weight(csr, vocabulary, idf)
+
+
+def weight_row(columns: IntArray, counts: IntArray, idf: FloatArray) -> sp.csr_matrix:
+    """One new document's row, weighted as `transform_counts` weights it, from its counts
+    already in vocabulary positions (repeated columns are summed; counts positive).
+
+    The per-request path of drafts: `transform_counts` re-checks and re-maps the whole
+    vocabulary on every call, which costs more than the row itself.
+    """
+    cols, inverse = np.unique(np.asarray(columns, dtype=np.int64), return_inverse=True)
+    summed = np.bincount(inverse, weights=np.asarray(counts, dtype=np.float64))
+    weights = (1.0 + np.log(summed)) * np.asarray(idf, dtype=np.float64)[cols]
+    if cols.size:
+        weights /= np.sqrt(np.dot(weights, weights))
+    out = sp.csr_matrix(
+        (weights.astype(np.float32), cols, np.array([0, cols.size], dtype=np.int64)),
+        shape=(1, len(idf)),
+    )
+    out.has_sorted_indices = True
+    return out
 
 
 def _as_count_csr(counts: sp.spmatrix | sp.sparray) -> sp.csr_matrix:

@@ -86,15 +86,19 @@ def test_serve_refuses_a_sqlite_file_holding_other_tables(
     assert uvicorn_calls == []
 
 
-def test_serve_with_workers_uses_the_factory(
-    cli: Cli, sqlite_url: str, uvicorn_calls: list[Any]
+def test_serve_with_workers_runs_the_worker_pool(
+    cli: Cli, sqlite_url: str, uvicorn_calls: list[Any], monkeypatch: pytest.MonkeyPatch
 ) -> None:
+    pools: list[tuple[tuple[Any, ...], dict[str, Any]]] = []
+    monkeypatch.setattr(
+        "service.api.worker_pool.run_pool", lambda *a, **kw: pools.append((a, kw)) or 0
+    )
     assert cli("db", "upgrade").code == 0
-    assert cli("serve", "--workers", "2").code == 0
-    ((app, options),) = uvicorn_calls
-    assert app == "service.api.factory:app_from_environment"
-    assert options["factory"] is True
-    assert options["workers"] == 2
+    assert cli("serve", "--workers", "2", "--port", "8124").code == 0
+    assert uvicorn_calls == []  # the pool's workers start uvicorn themselves
+    ((args, options),) = pools
+    assert args == (2, "127.0.0.1", 8124)
+    assert options["log_level"] == "info"
 
 
 def test_app_factory_reads_the_environment(sqlite_url: str) -> None:

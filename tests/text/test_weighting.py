@@ -8,7 +8,13 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from service.text.weighting import TfidfResult, fit_tfidf, select_vocabulary, transform_counts
+from service.text.weighting import (
+    TfidfResult,
+    fit_tfidf,
+    select_vocabulary,
+    transform_counts,
+    weight_row,
+)
 
 
 def _random_counts(n_docs: int, n_terms: int, seed: int) -> sp.csr_matrix:
@@ -131,3 +137,36 @@ def test_result_is_frozen():
     assert isinstance(result, TfidfResult)
     with pytest.raises(AttributeError):
         result.idf = np.zeros(1)  # type: ignore[misc]
+
+
+def test_weight_row_equals_transform_counts_of_one_row() -> None:
+    # One new document weighted alone must match the batch weighting exactly (float32).
+    rng = np.random.default_rng(3)
+    counts = sp.random(60, 40, density=0.2, format="csr", random_state=3)
+    counts.data = rng.integers(1, 9, size=counts.nnz).astype(np.int64)
+    counts = counts.astype(np.int64)
+    fitted = fit_tfidf(counts, min_df=1, max_df=1.0)
+    position = {int(col): i for i, col in enumerate(fitted.vocabulary)}
+    for r in range(10):
+        start, end = counts.indptr[r], counts.indptr[r + 1]
+        kept = [
+            (position[c], n)
+            for c, n in zip(counts.indices[start:end], counts.data[start:end], strict=True)
+            if c in position
+        ]
+        cols = np.array([c for c, _ in kept][::-1], dtype=np.int64)  # any order
+        ns = np.array([n for _, n in kept][::-1], dtype=np.int64)
+        got = weight_row(cols, ns, fitted.idf)
+        want = transform_counts(fitted, counts[r])
+        assert got.shape == want.shape
+        np.testing.assert_array_equal(got.indices, want.indices)
+        np.testing.assert_allclose(got.data, want.data, rtol=2e-7)
+
+
+def test_weight_row_sums_repeated_columns_and_allows_no_term() -> None:
+    idf = np.array([1.0, 2.0, 3.0])
+    twice = weight_row(np.array([2, 0, 2]), np.array([1, 1, 2]), idf)
+    once = weight_row(np.array([0, 2]), np.array([1, 3]), idf)
+    np.testing.assert_allclose(twice.toarray(), once.toarray())
+    empty = weight_row(np.array([], dtype=np.int64), np.array([], dtype=np.int64), idf)
+    assert empty.nnz == 0 and empty.shape == (1, 3)

@@ -2,19 +2,17 @@
 
 from __future__ import annotations
 
-from typing import Annotated, Any
+from typing import Annotated
 
-from fastapi import APIRouter, Query, Request
-from fastapi.concurrency import run_in_threadpool
+from fastapi import APIRouter, Query, Request, Response
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from service.api.body import read_json
 from service.api.deps import READ, settings
+from service.api.live import json_response, live_of
 from service.errors import InvalidInputError
 from service.pipeline import queries as use
-from service.pipeline.collections import check_name
 from service.pipeline.formatting import validation_details
-from service.pipeline.live_index import Live, LiveIndex
 
 router = APIRouter(prefix="/v1/collections/{collection}", tags=["queries"])
 
@@ -37,31 +35,26 @@ class DraftIn(BaseModel):
     t: float | None = Field(default=None, gt=0, le=use.MAX_T)
 
 
-def _live(request: Request, collection: str) -> Live:
-    index: LiveIndex = request.app.state.live_index
-    return index.get(check_name(collection))
-
-
 @router.get(
     "/documents/{document_id}/neighbors",
     dependencies=[READ],
     summary="Related documents",
 )
-def get_neighbors(
+async def get_neighbors(
     collection: str, document_id: str, request: Request, k: K = 10, t: T = None
-) -> Any:
+) -> Response:
     """The ``k`` documents nearest this one in diffusion space at time ``t``: id, title,
     diffusion distance (truncated), ``bound`` on the left-out part of its square,
     ``upper`` bound on the distance, cosine similarity, and whether the document is
     provisional (added or changed since the index was built, placed by the Nystrom
     extension). 404 for an unknown document, 422 for one without terms, 409 before the
     first build."""
-    live = _live(request, collection)
-    return use.neighbors(request.app.state.engine, live, document_id, k, t)
+    live = await live_of(request, collection)
+    return json_response(use.neighbors(request.app.state.engine, live, document_id, k, t))
 
 
 @router.post("/similar", dependencies=[READ], summary="Related documents for a draft")
-async def post_similar(collection: str, request: Request) -> Any:
+async def post_similar(collection: str, request: Request) -> Response:
     """Body ``{"text": ..., "title": null, "k": 10, "t": null}``. The draft is weighted with
     the index's vocabulary and placed by the Nystrom extension; the answer has its
     component, its diffusion coordinates and its related documents. Nothing is stored."""
@@ -77,24 +70,20 @@ async def post_similar(collection: str, request: Request) -> Any:
             {"limit": limits.max_text_bytes},
             code="text_too_long",
         )
-
-    def run() -> dict[str, Any]:
-        live = _live(request, collection)
-        return use.similar(live, draft.text, draft.title, draft.k, draft.t)
-
-    return await run_in_threadpool(run)
+    live = await live_of(request, collection)
+    return json_response(use.similar(live, draft.text, draft.title, draft.k, draft.t))
 
 
 @router.get("/distance", dependencies=[READ], summary="Diffusion distance")
-def get_distance(
+async def get_distance(
     collection: str,
     request: Request,
     source: Annotated[str, Query(alias="from", min_length=1, max_length=256)],
     to: Annotated[list[str], Query(min_length=1, max_length=MAX_TARGETS)],
     t: T = None,
-) -> Any:
+) -> Response:
     """The diffusion distance at time ``t`` from ``from`` to each ``to`` (repeat ``to``
     for several targets, at most 100), with its truncation bound. Documents in different
     components are at infinite distance: ``distance`` is null and ``infinite`` true."""
-    live = _live(request, collection)
-    return use.distance(request.app.state.engine, live, source, to, t)
+    live = await live_of(request, collection)
+    return json_response(use.distance(request.app.state.engine, live, source, to, t))
