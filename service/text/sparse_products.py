@@ -2,9 +2,10 @@
 steps, for the per-request cosines of the query path.
 
 A related-documents answer needs the cosine of the query's TF-IDF vector with 10-200
-candidate rows, and placing a draft needs its cosine with every vertex. scipy's fancy
-indexing builds intermediate sparse matrices for either (0.25-0.5 ms per request on
-this machine); gathering the entries directly costs a few tens of microseconds.
+candidate rows: scipy's fancy row indexing builds two sparse matrices for that (about
+0.25 ms per request on this machine) where gathering the few thousand entries directly
+costs a few tens of microseconds. Placing a draft needs its cosine with every vertex,
+hundreds of thousands of entries, where scipy's C loops win.
 """
 
 from __future__ import annotations
@@ -66,10 +67,14 @@ def combine_columns(
     matrix: sp.csc_matrix, columns: NDArray[np.integer], values: NDArray[np.floating]
 ) -> NDArray[np.float64]:
     """``matrix @ x`` as a dense vector, for the sparse ``x`` with entries ``values`` at
-    ``columns`` (distinct)."""
+    ``columns`` (distinct).
+
+    scipy's column selection (a C loop) and a product with the selected columns: at
+    100,000 documents a draft's ~100 terms touch ~190,000 stored entries, which this does
+    in 0.7 ms against 4.3 ms for the numpy gather `row_dots` uses (measured on the
+    bench-query collection)."""
     columns = np.asarray(columns, dtype=np.int64)
     if columns.size == 0:
         return np.zeros(matrix.shape[0])
-    owner, positions = _gather(matrix.indptr, columns)
-    weights = matrix.data[positions] * np.asarray(values, dtype=np.float64)[owner]
-    return np.bincount(matrix.indices[positions], weights=weights, minlength=matrix.shape[0])
+    chosen = matrix[:, columns]
+    return np.asarray(chosen @ np.asarray(values, dtype=np.float64)).ravel()

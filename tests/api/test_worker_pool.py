@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import socket
@@ -118,3 +119,27 @@ def _alive(pid: int) -> bool:
     except OSError:
         return False
     return state != "Z"
+
+
+def test_api_processes_run_blas_on_one_thread(tmp_path: Path) -> None:
+    # In a process of its own: the limit is process-wide and would reach other tests.
+    url = f"sqlite:///{tmp_path / 'blas.db'}"
+    engine = make_engine(url)
+    upgrade(engine)
+    engine.dispose()
+    probe = (
+        "from threadpoolctl import threadpool_info\n"
+        "from service.api.factory import app_from_environment\n"
+        "before = [p['num_threads'] for p in threadpool_info() if p['user_api'] == 'blas']\n"
+        "app_from_environment()\n"
+        "after = [p['num_threads'] for p in threadpool_info() if p['user_api'] == 'blas']\n"
+        "import json; print(json.dumps([before, after]))\n"
+    )
+    env = os.environ | {"TIDEMAP_DATABASE_URL": url, "OPENBLAS_NUM_THREADS": "2"}
+    out = subprocess.run(
+        [sys.executable, "-c", probe], env=env, capture_output=True, text=True, timeout=120
+    )
+    assert out.returncode == 0, out.stderr
+    before, after = json.loads(out.stdout)
+    assert before and all(n == 2 for n in before)
+    assert after and all(n == 1 for n in after)
