@@ -5,6 +5,13 @@ Diffusion distance at time t is the Euclidean distance between diffusion coordin
 neighbours in ``Psi_t``. `ExactSearch` scans all points with one matrix-vector product
 (``|y|^2 - 2 x.y + |x|^2``, norms precomputed), which costs O(n m) per query and is what
 small components use; large ones use an index (service.geometry.coordinate_index).
+
+The scan is in float64. The expanded form cancels: in a large component documents sit in
+tight clusters far from the origin (10th-neighbour distances of 0.002-0.03 against norms
+near 1), and in float32 its rounding (about 1e-7 of |y|^2) reshuffled near neighbours:
+recall@10 of the float32 scan against float64 truth was 0.966 with 27 candidates on
+bench-query's 100k collection (45,469 points x 40). float64 costs twice the memory
+traffic and is exact to rounding.
 """
 
 from __future__ import annotations
@@ -31,8 +38,8 @@ class ExactSearch:
     exact = True
 
     def __init__(self, points: NDArray[np.floating]) -> None:
-        self.points = np.ascontiguousarray(points, dtype=np.float32)
-        self.sq_norms = np.einsum("ij,ij->i", self.points, self.points, dtype=np.float64)
+        self.points = np.ascontiguousarray(points, dtype=np.float64)
+        self.sq_norms = np.einsum("ij,ij->i", self.points, self.points)
 
     @property
     def size(self) -> int:
@@ -40,8 +47,8 @@ class ExactSearch:
 
     def squared_distances(self, query: NDArray[np.floating]) -> NDArray[np.float64]:
         """Squared distance from ``query`` (m,) to every point (rounding kept >= 0)."""
-        q = np.asarray(query, dtype=np.float32)
-        d2 = self.sq_norms - 2.0 * (self.points @ q).astype(np.float64) + float(q @ q)
+        q = np.asarray(query, dtype=np.float64)
+        d2 = self.sq_norms - 2.0 * (self.points @ q) + float(q @ q)
         return np.maximum(d2, 0.0)
 
     def search(

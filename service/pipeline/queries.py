@@ -27,7 +27,7 @@ from service.pipeline.live_index import Live
 from service.pipeline.placement import Placement, place_row, text_row
 from service.pipeline.query_view import ISOLATED, NO_TERMS, QueryView, coordinate_scale
 from service.storage.models import Collection, Document
-from service.text.sparse_products import row_dots, row_entries
+from service.text.sparse_products import gather_entries, row_dots, row_entries
 
 DOCUMENTS = Document.__table__
 COLLECTIONS = Collection.__table__
@@ -160,14 +160,14 @@ def point_coordinates(live: Live, point: QueryPoint, t: float) -> NDArray[np.flo
 
 
 # Components with at least this many vertices are searched through an HNSW index once
-# it is built (in the background; exact search answers meanwhile). Below it the exact
-# scan is both exact and cheap: 0.27 ms per query at 45,469 vertices x 40 coordinates
-# (single-threaded BLAS), about 6 ns per vertex. HNSW answered in 0.05 ms there, but its
-# recall@10 on those diffusion coordinates stayed at 0.87-0.89 whatever M (16, 32) and
-# efSearch (64-256) (bench-query's 100k collection, measured on this machine), too low
-# to trade for 0.2 ms. So the index only serves components where the scan would cost
-# more than about 1.2 ms, and its measured recall is reported beside each answer.
-INDEXED_MIN_VERTICES = 200_000
+# it is built (in the background; exact search answers meanwhile). At 45,469 vertices x 40
+# coordinates the exact float64 scan costs about 0.5 ms per query and HNSW 0.08 ms with
+# recall@10 0.989 from the 27 candidates asked below (bench-query's 100k collection,
+# measured on this machine); below 20,000 the scan costs under ~0.2 ms.
+INDEXED_MIN_VERTICES = 20_000
+# Candidates asked beyond k: the query's own row, rows hidden since the build, and slack
+# for the exact re-ranking by `_measure`.
+CANDIDATE_MARGIN = 17
 
 
 class _BackgroundIndex:
@@ -184,7 +184,8 @@ class _BackgroundIndex:
     def _build(self, exact: ExactSearch) -> None:
         try:
             index = HnswSearch(exact.points)
-            self.recall = round(measure_recall(index, exact), 4)
+            recall = measure_recall(index, exact, k=10, candidates=10 + CANDIDATE_MARGIN)
+            self.recall = round(recall, 4)
             self.ready = index
         except Exception as exc:
             self.error = f"{type(exc).__name__}: {exc}"
@@ -223,7 +224,7 @@ def _candidates(
     y = point_coordinates(live, point, t)
     search, how = _search(view, c, t)
     members = view.members[c]
-    want = k + 1 + 16
+    want = k + CANDIDATE_MARGIN
     while True:
         idx, d2 = search.search(y, want)
         rows, row_d2 = _visible_rows(live, members[idx], d2, point.row)
@@ -258,11 +259,8 @@ def _visible_rows(
     """The visible rows (documents) of these vertices, each with its vertex's d^2, in the
     vertices' order; ``exclude`` (the query's own row) left out."""
     view = live.view
-    starts = view.vertex_rows_indptr[vertices]
-    lengths = view.vertex_rows_indptr[vertices + 1] - starts
-    owner = np.repeat(np.arange(vertices.size), lengths)
-    offsets = np.arange(owner.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
-    rows = view.vertex_rows[starts[owner] + offsets]
+    owner, positions = gather_entries(view.vertex_rows_indptr, vertices)
+    rows = view.vertex_rows[positions]
     keep = ~live.hidden[rows]
     if exclude is not None:
         keep &= rows != exclude

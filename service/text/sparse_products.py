@@ -14,7 +14,7 @@ import numpy as np
 import scipy.sparse as sp
 from numpy.typing import NDArray
 
-__all__ = ["combine_columns", "row_dots", "row_entries"]
+__all__ = ["combine_columns", "gather_entries", "row_dots", "row_entries"]
 
 
 def row_entries(
@@ -40,7 +40,7 @@ def row_dots(
     order = np.argsort(columns, kind="stable")
     x_cols = np.asarray(columns)[order]
     x_vals = np.asarray(values, dtype=np.float64)[order]
-    owner, positions = _gather(matrix.indptr, rows)
+    owner, positions = gather_entries(matrix.indptr, rows)
     if positions.size == 0:
         return out
     cols = matrix.indices[positions]
@@ -50,7 +50,7 @@ def row_dots(
     return np.bincount(owner, weights=products, minlength=rows.size)
 
 
-def _gather(
+def gather_entries(
     indptr: NDArray[np.integer], chosen: NDArray[np.int64]
 ) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """(owner, position): for every stored entry of the chosen major rows/columns, which

@@ -48,3 +48,52 @@ def test_hnsw_search_with_k_above_ef_search() -> None:
     index = HnswSearch(points)
     idx, _ = index.search(points[0], 150)
     assert idx.size == 150 and len(set(idx.tolist())) == 150
+
+
+def test_exact_search_ranks_tight_clusters_far_from_the_origin() -> None:
+    # Neighbour distances ~1e-3 at norms ~10: the expanded |y|^2 - 2x.y + |x|^2 must not
+    # lose the ranking to rounding (in float32 it did).
+    rng = np.random.default_rng(7)
+    centres = 10 * rng.normal(size=(5, 20))
+    points = centres[rng.integers(0, 5, 4000)] + 1e-3 * rng.normal(size=(4000, 20))
+    search = ExactSearch(points)
+    for row in range(0, 4000, 97):
+        full = ((points - points[row]) ** 2).sum(axis=1)
+        idx, d2 = search.search(points[row], 10)
+        assert idx.tolist() == np.argsort(full, kind="stable")[:10].tolist()
+        np.testing.assert_allclose(d2, full[idx], rtol=1e-6, atol=1e-12)
+
+
+class _Fixed:
+    """An 'index' that gives fixed answers (rows found by the query's first coordinate)."""
+
+    def __init__(self, answers: dict[int, list[int]]) -> None:
+        self.answers = answers
+        self.asked: list[int] = []
+
+    def search(self, query: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+        self.asked.append(k)
+        found = self.answers[int(query[0])][:k]
+        return np.array(found), np.zeros(len(found))
+
+
+def test_measure_recall_keeps_the_best_of_the_candidates() -> None:
+    points = np.array([[0.0, 0.0], [1.0, 0.0], [2.0, 1.0], [3.0, 1.0], [4.0, 3.0]])
+    exact = ExactSearch(points)
+    # Each row's nearest other point is at squared distance 1 (5 for row 4); the index
+    # answers the row itself, then row r+2, which is never that nearest one.
+    index = _Fixed({r: [r, (r + 2) % 5, (r + 1) % 5, (r + 3) % 5, (r + 4) % 5] for r in range(5)})
+    assert measure_recall(index, exact, k=2, sample=5) == 0.5  # type: ignore[arg-type]
+    # Asked for all five, the best two by exact distance are the true two.
+    assert measure_recall(index, exact, k=2, sample=5, candidates=5) == 1.0  # type: ignore[arg-type]
+    assert index.asked == [2] * 5 + [5] * 5
+
+
+def test_measure_recall_counts_a_tie_at_the_kth_place_as_found() -> None:
+    # Rows 1 and 2 are both at squared distance 1 from row 0.
+    points = np.array([[0.0, 0.0], [1.0, 0.0], [2.0, 1.0]])
+    points[2] = [-1.0, 0.0]
+    exact = ExactSearch(points)
+    answers = {0: [0, 2], 1: [1, 0], -1: [2, 0]}
+    index = _Fixed(answers)
+    assert measure_recall(index, exact, k=2, sample=3) == 1.0  # type: ignore[arg-type]

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from service.text.sparse_products import combine_columns, row_dots, row_entries
+from service.text.sparse_products import combine_columns, gather_entries, row_dots, row_entries
 
 
 @pytest.mark.parametrize("seed", range(5))
@@ -45,3 +45,10 @@ def test_combine_columns_equals_scipy_product(seed: int) -> None:
     x[cols] = vals
     np.testing.assert_allclose(combine_columns(matrix, cols, vals), matrix @ x, atol=1e-14)
     assert combine_columns(matrix, np.array([], dtype=np.int64), np.array([])).shape == (400,)
+
+
+def test_gather_entries_lists_every_entry_of_the_chosen_rows_in_order() -> None:
+    indptr = np.array([0, 2, 2, 5, 6])  # rows of 2, 0, 3 and 1 entries
+    owner, positions = gather_entries(indptr, np.array([2, 1, 0, 2]))
+    assert owner.tolist() == [0, 0, 0, 2, 2, 3, 3, 3]
+    assert positions.tolist() == [2, 3, 4, 0, 1, 2, 3, 4]
