@@ -97,7 +97,11 @@ async def update_collection(collection: str, request: Request) -> Any:
 @router.delete(
     "/{collection}", status_code=204, dependencies=[ADMIN], summary="Delete a collection"
 )
-def delete_collection(collection: str, session: SessionDep) -> Response:
+def delete_collection(collection: str, session: SessionDep, request: Request) -> Response:
     """Delete the collection with all its documents and terms, for real."""
     use.delete_collection(session, collection)
+    # Its loaded index (ids and titles) leaves this process now; other API processes
+    # drop theirs at the next query that names the collection.
+    request.app.state.live_index.forget(collection)
+    request.app.state.version_cache.forget(collection)
     return Response(status_code=204)

@@ -1,0 +1,47 @@
+"""LiveIndex keeps loaded versions away from the cyclic collector, and lets old ones go."""
+
+from __future__ import annotations
+
+import gc
+import weakref
+
+import pytest
+from sqlalchemy import Engine
+
+from service.errors import NotFoundError
+from service.pipeline.collections import delete_collection
+from service.pipeline.live_index import LiveIndex
+from service.pipeline.version_cache import VersionCache
+from service.storage.session import make_session_factory
+from tests.query_fixtures import build, built_collection
+
+
+def test_a_loaded_version_is_frozen_and_an_old_one_is_freed(engine: Engine) -> None:
+    built_collection(engine, "frozen")
+    index = LiveIndex(engine, VersionCache(make_session_factory(engine), check_seconds=0))
+    first = index.get("frozen").view
+    assert gc.get_freeze_count() > 0
+    # The view's own containers are among the frozen objects the collector skips.
+    assert not any(obj is first.external_ids for obj in gc.get_objects())
+    old = weakref.ref(first)
+    del first
+
+    build(engine, "frozen")  # a second version is published
+    second = index.get("frozen").view
+    assert second.version.number == 2
+    # The first view was frozen; loading the second unfroze and collected, and nothing
+    # holds the first any more.
+    gc.collect()
+    assert old() is None
+
+
+def test_a_deleted_collection_leaves_the_process(engine: Engine) -> None:
+    built_collection(engine, "gone")
+    index = LiveIndex(engine, VersionCache(make_session_factory(engine), check_seconds=0))
+    view = weakref.ref(index.get("gone").view)
+    with make_session_factory(engine)() as session:
+        delete_collection(session, "gone")
+    with pytest.raises(NotFoundError):
+        index.get("gone")
+    gc.collect()
+    assert view() is None  # its ids and titles are no longer held
