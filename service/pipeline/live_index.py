@@ -273,13 +273,13 @@ def _settle_long_lived() -> None:
     A 100k-document version is some 185,000 long-lived Python objects (ids, titles, their
     dicts); a full collection walks them all, 115 ms on this machine, and every request
     waiting on that process waits with it (neighbors at 100k, 2 workers: p99 44.7 ms
-    without this, 29.6 ms with it). Frozen objects are skipped by the collector
-    (gc.freeze) but still freed by reference counting, which is how an old version goes:
-    nothing of a view sits in a reference cycle (tests/pipeline/test_live_index.py checks
-    that it is freed). The young generations are collected first so that little cyclic
-    garbage is frozen with it; a full collection here would cost the same 115 ms.
+    without this, 29.6 ms with it, one pair of runs). Frozen objects are skipped by the
+    collector (gc.freeze) but still freed by reference counting, which is how an old
+    version goes (tests/pipeline/test_live_index.py checks that it is freed). Once per
+    loaded version: unfreeze, so cyclic garbage frozen last time can go, collect, freeze.
     """
-    gc.collect(1)
+    gc.unfreeze()
+    gc.collect()
     gc.freeze()
 
 
