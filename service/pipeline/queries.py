@@ -161,9 +161,9 @@ def point_coordinates(live: Live, point: QueryPoint, t: float) -> NDArray[np.flo
 
 # Components with at least this many vertices are searched through an HNSW index once
 # it is built (in the background; exact search answers meanwhile). At 45,469 vertices x 40
-# coordinates the exact float64 scan costs about 0.5 ms per query and HNSW 0.08 ms with
-# recall@10 0.989 from the 27 candidates asked below (bench-query's 100k collection,
-# measured on this machine); below 20,000 the scan costs under ~0.2 ms.
+# coordinates the exact float64 scan costs 1.0-1.2 ms per query and HNSW 0.08 ms with
+# recall@10 0.98-0.99 from the 27 candidates asked below (bench-query's 100k collection,
+# measured on this machine); below 20,000 the scan costs under ~0.5 ms.
 INDEXED_MIN_VERTICES = 20_000
 # Candidates asked beyond k: the query's own row, rows hidden since the build, and slack
 # for the exact re-ranking by `_measure`.
