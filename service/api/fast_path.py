@@ -112,7 +112,7 @@ class QueryFastPath:
         return self._answer(scope, lambda: use.neighbors(state.engine, live, match.group(2), k, t))
 
     def _distance(self, scope: Scope, match: re.Match[str]) -> dict[str, Any]:
-        pairs = parse_qsl(scope["query_string"].decode("latin-1"), keep_blank_values=True)
+        pairs = _pairs(scope)
         sources = [v for n, v in pairs if n == "from"]
         targets = [v for n, v in pairs if n == "to"]
         ts = [v for n, v in pairs if n == "t"]
@@ -123,7 +123,6 @@ class QueryFastPath:
         if len(ts) > 1:
             raise _HandOnError
         t = _t(ts[0] if ts else None)
-        _check_query_text(scope)
         state, live = _live(scope, match.group(1))
         return self._answer(scope, lambda: use.distance(state.engine, live, sources[0], targets, t))
 
@@ -168,21 +167,22 @@ class QueryFastPath:
 # --- what is checked before answering ------------------------------------------------
 
 
+def _pairs(scope: Scope) -> list[tuple[str, str]]:
+    """The query string's (name, value) pairs; percent-escapes that are not UTF-8, or raw
+    bytes beyond ASCII, are the app's to judge."""
+    try:
+        text = scope["query_string"].decode("ascii")
+        return parse_qsl(text, keep_blank_values=True, errors="strict")
+    except (UnicodeDecodeError, ValueError) as exc:
+        raise _HandOnError from exc
+
+
 def _params(scope: Scope, allowed: set[str]) -> dict[str, str]:
-    pairs = parse_qsl(scope["query_string"].decode("latin-1"), keep_blank_values=True)
+    pairs = _pairs(scope)
     params = dict(pairs)
     if len(params) != len(pairs) or not params.keys() <= allowed:
         raise _HandOnError
-    _check_query_text(scope)
     return params
-
-
-def _check_query_text(scope: Scope) -> None:
-    # Percent-escapes that are not UTF-8 are the app's to judge.
-    try:
-        parse_qsl(scope["query_string"].decode("ascii"), errors="strict")
-    except (UnicodeDecodeError, ValueError) as exc:
-        raise _HandOnError from exc
 
 
 def _k(raw: str | None) -> int:

@@ -7,20 +7,8 @@ import json
 import pytest
 
 from service.bench.map_export import CASES
+from tests.bench.test_map_export_bench import CASE_FIELDS  # the benchmark's JSON fields
 from tests.cli.conftest import Cli
-
-CASE_FIELDS = {
-    "seconds_min",
-    "seconds_max",
-    "seconds_first",
-    "bytes_body",
-    "mb_body",
-    "pieces",
-    "mb_largest_piece",
-    "mb_peak_allocated",
-    "mb_peak_allocated_first",
-    "mb_kept_first",
-}
 
 
 def test_bench_map_prints_one_json_object(cli: Cli) -> None:
