@@ -21,6 +21,7 @@ from service.api.routes import (
 from service.config import Settings
 from service.pipeline.keys import KeyVerifier
 from service.pipeline.live_index import LiveIndex
+from service.pipeline.queries import warm_search
 from service.pipeline.version_cache import VersionCache
 from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory
@@ -49,7 +50,7 @@ def create_app(
         app.state.session_factory, check_seconds=settings.version_check_seconds
     )
     # What queries see: the active version, minus deletions, plus provisional documents.
-    app.state.live_index = LiveIndex(engine, app.state.version_cache)
+    app.state.live_index = LiveIndex(engine, app.state.version_cache, on_load=warm_search)
     install_error_handlers(app)
     app.state.fast_path = FastPathCounts()
     if fast_path:

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import gc
 import threading
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime
 
@@ -122,9 +123,15 @@ class _Entry:
 class LiveIndex:
     """Per-collection `Live` objects of one API process (thread-safe)."""
 
-    def __init__(self, engine: Engine, versions: VersionCache) -> None:
+    def __init__(
+        self,
+        engine: Engine,
+        versions: VersionCache,
+        on_load: Callable[[QueryView], None] | None = None,
+    ) -> None:
         self._engine = engine
         self._versions = versions
+        self._on_load = on_load  # called once per loaded view (queries warm their search)
         self._entries: dict[str, _Entry] = {}
         self._views: dict[int, QueryView] = {}
         self._lock = threading.Lock()
@@ -181,6 +188,8 @@ class LiveIndex:
             if loaded:
                 self._drop_unused_views()
                 _settle_long_lived()
+                if self._on_load is not None:
+                    self._on_load(view)
             return entry.live
 
     def _load_view(self, collection: str, active: int) -> QueryView:

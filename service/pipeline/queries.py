@@ -34,7 +34,7 @@ COLLECTIONS = Collection.__table__
 
 MAX_T = 1000.0
 
-__all__ = ["QueryPoint", "distance", "neighbors", "resolve", "similar"]
+__all__ = ["QueryPoint", "distance", "neighbors", "resolve", "similar", "warm_search"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -205,6 +205,15 @@ def _search(view: QueryView, c: int, t: float) -> tuple[ExactSearch | HnswSearch
     if holder.ready is None:
         return exact, {"method": "exact"}
     return holder.ready, {"method": "hnsw", "recall": holder.recall}
+
+
+def warm_search(view: QueryView) -> None:
+    """Start the search structures of a freshly loaded version's large components (their
+    HNSW indexes build in the background), so the first queries after a publish do not
+    wait for them or fall back to the exact scan for long. For `LiveIndex(on_load=...)`."""
+    for c, members in enumerate(view.members):
+        if members.size >= INDEXED_MIN_VERTICES:
+            _search(view, c, view.default_t)
 
 
 @dataclass(frozen=True)
@@ -388,21 +397,37 @@ def related(
     values, bounds = _measure(live, point, cands, t)
     cosines = _cosines(live, point, cands)
     order = np.lexsort((np.arange(len(cands)), values))
+    # Whole columns at once, then plain Python values (numpy scalars cost per call).
+    upper = np.sqrt(values**2 + bounds)
+    columns = zip(
+        order.tolist(),
+        values[order].tolist(),
+        _finite_list(bounds[order]),
+        _finite_list(upper[order]),
+        np.round(cosines[order], 6).tolist(),
+        strict=True,
+    )
     out = []
-    for i in order.tolist():
+    for i, distance, bound, up, cosine in columns:
         ident, title, provisional = _describe(live, cands[i])
         out.append(
             {
                 "id": ident,
                 "title": title,
-                "distance": float(values[i]),
-                "bound": _finite(bounds[i]),
-                "upper": _finite(np.sqrt(values[i] ** 2 + bounds[i])),
-                "cosine": round(float(cosines[i]), 6),
+                "distance": distance,
+                "bound": bound,
+                "upper": up,
+                "cosine": cosine,
                 "provisional": provisional,
             }
         )
     return out, how
+
+
+def _finite_list(values: NDArray[np.float64]) -> list[float | None]:
+    return [
+        v if f else None for v, f in zip(values.tolist(), np.isfinite(values).tolist(), strict=True)
+    ]
 
 
 def _header(live: Live, t: float) -> dict[str, Any]:

@@ -37,16 +37,13 @@ def row_dots(
     out = np.zeros(rows.size)
     if rows.size == 0 or len(columns) == 0:
         return out
-    order = np.argsort(columns, kind="stable")
-    x_cols = np.asarray(columns)[order]
-    x_vals = np.asarray(values, dtype=np.float64)[order]
     owner, positions = gather_entries(matrix.indptr, rows)
     if positions.size == 0:
         return out
-    cols = matrix.indices[positions]
-    at = np.minimum(np.searchsorted(x_cols, cols), x_cols.size - 1)
-    hit = x_cols[at] == cols
-    products = np.where(hit, matrix.data[positions] * x_vals[at], 0.0)
+    # The vector spread over all columns: one lookup per entry, no search.
+    dense = np.zeros(matrix.shape[1])
+    dense[np.asarray(columns)] = values
+    products = matrix.data[positions] * dense[matrix.indices[positions]]
     return np.bincount(owner, weights=products, minlength=rows.size)
 
 

@@ -45,3 +45,37 @@ def test_a_deleted_collection_leaves_the_process(engine: Engine) -> None:
         index.get("gone")
     gc.collect()
     assert view() is None  # its ids and titles are no longer held
+
+
+def test_on_load_runs_once_per_loaded_version(engine: Engine) -> None:
+    built_collection(engine, "hook")
+    seen: list[int] = []
+    index = LiveIndex(
+        engine,
+        VersionCache(make_session_factory(engine), check_seconds=0),
+        on_load=lambda view: seen.append(view.version.number),
+    )
+    index.get("hook")
+    index.get("hook")  # current: nothing loaded
+    build(engine, "hook")
+    index.get("hook")
+    assert seen == [1, 2]
+
+
+def test_warm_search_starts_the_index_of_large_components(
+    engine: Engine, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from service.pipeline import queries
+
+    built_collection(engine, "warm")
+    monkeypatch.setattr(queries, "INDEXED_MIN_VERTICES", 50)  # the test corpus is small
+    index = LiveIndex(
+        engine,
+        VersionCache(make_session_factory(engine), check_seconds=0),
+        on_load=queries.warm_search,
+    )
+    view = index.get("warm").view
+    large = [c for c, m in enumerate(view.members) if m.size >= 50]
+    assert large  # the corpus has a component of at least 50 documents
+    for c in large:
+        assert ("hnsw", c, view.default_t) in view._cache
