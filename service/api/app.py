@@ -44,7 +44,7 @@ def create_app(
     app.state.settings = settings
     app.state.engine = engine
     app.state.session_factory = make_session_factory(engine)
-    app.state.key_verifier = KeyVerifier(settings.auth_cache_seconds)
+    app.state.key_verifier = KeyVerifier(settings.auth_cache_seconds, engine)
     # Loaded index versions, shared by the query routes of this process.
     app.state.version_cache = VersionCache(
         app.state.session_factory, check_seconds=settings.version_check_seconds

@@ -9,7 +9,7 @@ such a request itself when everything about it is plainly in order:
 - the path is one of the three, the method GET (POST for similar);
 - every parameter is present in its simplest form and in range (k digits, t a plain
   decimal), each given once;
-- the bearer key was verified recently (KeyVerifier's cache) and may read;
+- the bearer key may read (KeyVerifier's cache, or one direct read when that expired);
 - the collection's live index is current (no version to load, no document to place);
 - the use case answers without raising.
 
@@ -216,7 +216,10 @@ def _authorised(scope: Scope) -> None:
             token = rest.strip()
     if token is None:
         raise _HandOnError
-    granted = scope["app"].state.key_verifier.cached_scope(token)
+    try:
+        granted = scope["app"].state.key_verifier.scope_now(token)
+    except Exception as exc:  # a driver error: the route's look-up reports it properly
+        raise _HandOnError from exc
     if granted is None or not scope_allows(granted, "read"):
         raise _HandOnError
 
@@ -224,7 +227,7 @@ def _authorised(scope: Scope) -> None:
 def _current_live(scope: Scope, raw_collection: str) -> Any:
     try:
         live = scope["app"].state.live_index.peek(check_name(raw_collection))
-    except TidemapError as exc:
+    except Exception as exc:  # incl. raw driver errors: the route answers them properly
         raise _HandOnError from exc
     if live is None:  # a refresh is due: the route does it in a thread
         raise _HandOnError

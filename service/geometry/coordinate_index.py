@@ -15,12 +15,14 @@ of the indexed points, and the caller reports the figure beside its answers.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from numpy.typing import NDArray
 
 from service.geometry.nearest import ExactSearch
 
-__all__ = ["HnswSearch", "measure_recall"]
+__all__ = ["HnswSearch", "component_coordinates", "coordinate_scale", "measure_recall"]
 
 # HNSW parameters (faiss defaults are M = 32, efConstruction = 40, efSearch = 16); the
 # values below gave recall@11 >= 0.997 on clustered points at a quarter of the exact
@@ -34,23 +36,49 @@ _EF_SEARCH = 128
 
 
 class HnswSearch:
-    """Approximate k nearest neighbours among the rows of ``points`` (n, m)."""
+    """Approximate k nearest neighbours among the rows of ``points`` (n, m).
+
+    ``HnswSearch(points)`` builds the graph (``threads`` OpenMP threads while adding);
+    ``to_bytes`` / ``from_bytes`` carry a built index to another process (an index
+    version stores it, so API processes do not build their own)."""
 
     exact = False
 
-    def __init__(self, points: NDArray[np.floating], *, threads: int = 2) -> None:
+    def __init__(self, points: NDArray[np.floating] | None = None, *, threads: int = 2) -> None:
         import faiss  # imported here: only large components need it
 
-        data = np.ascontiguousarray(points, dtype=np.float32)
         self._faiss = faiss
-        self._index = faiss.IndexHNSWFlat(data.shape[1], _M)
-        self._index.hnsw.efConstruction = _EF_CONSTRUCTION
+        if points is None:  # from_bytes fills it in
+            return
+        data = np.ascontiguousarray(points, dtype=np.float32)
+        index = faiss.IndexHNSWFlat(data.shape[1], _M)
+        index.hnsw.efConstruction = _EF_CONSTRUCTION
         faiss.omp_set_num_threads(max(1, threads))
-        self._index.add(data)
+        index.add(data)
+        self._take(index)
+
+    def _take(self, index: Any) -> None:
         # One query at a time: OpenMP's start-up would cost more than it saves.
-        faiss.omp_set_num_threads(1)
-        self._index.hnsw.efSearch = _EF_SEARCH
-        self._n = int(data.shape[0])
+        self._faiss.omp_set_num_threads(1)
+        index.hnsw.efSearch = _EF_SEARCH
+        self._index = index
+        self._n = int(index.ntotal)
+        self.dimension = int(index.d)
+
+    def to_bytes(self) -> NDArray[np.uint8]:
+        """The built index in faiss's own serialised form."""
+        data: NDArray[np.uint8] = self._faiss.serialize_index(self._index)
+        return data
+
+    @classmethod
+    def from_bytes(cls, data: NDArray[np.uint8]) -> HnswSearch:
+        """An index written by ``to_bytes``; ValueError if it is not an HNSW index."""
+        search = cls()
+        index = search._faiss.deserialize_index(np.ascontiguousarray(data, dtype=np.uint8))
+        if not isinstance(index, search._faiss.IndexHNSWFlat):
+            raise ValueError(f"not an HNSW index: {type(index).__name__}")
+        search._take(index)
+        return search
 
     @property
     def size(self) -> int:
@@ -98,3 +126,20 @@ def measure_recall(
         best = np.sort(d2[found])[:k]
         hits += int(np.count_nonzero(best <= kth * (1 + 1e-9) + 1e-15))
     return hits / (len(rows) * k)
+
+
+def coordinate_scale(lam: NDArray[np.float64], t: float, m: int) -> NDArray[np.float64]:
+    """``lambda_k^t`` for k = 1..m; a negative eigenvalue keeps its sign (integer-t value)."""
+    head = lam[1 : m + 1]
+    return np.sign(head) * np.abs(head) ** t
+
+
+def component_coordinates(
+    psi: NDArray[np.floating], lam: NDArray[np.float64], t: float, m: int
+) -> NDArray[np.float32]:
+    """Diffusion coordinates ``lambda_k^t psi_k`` (k = 1..m) of one component's vertices,
+    as float32 rows: what its search structures index, built the same way wherever they
+    are built (the stored index and the queries' vectors must agree)."""
+    return np.ascontiguousarray(
+        (psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :]).astype(np.float32)
+    )

@@ -14,6 +14,7 @@ import numpy as np
 from service.errors import BuildFailedError
 from service.geometry.matching import match_groups
 from service.pipeline.collection_settings import CollectionSettings
+from service.pipeline.coordinate_indexes import build_coordinate_indexes
 from service.pipeline.index_content_types import (
     DOC_IDS,
     STABLE_GROUP,
@@ -123,6 +124,11 @@ def compute_index(
         "tfidf_data": tfidf.data.astype(np.float32),
         "sigma_floor": np.array([corpus.sigma_floor]),
     }
+    # Related-document search of the large components, built once here for every API
+    # process (service.pipeline.coordinate_indexes).
+    progress("coordinate index", 0.95)
+    search_arrays, search_stats = build_coordinate_indexes(arrays, settings.diffusion_time)
+    arrays |= search_arrays
     stats = corpus.statistics
     statistics: dict[str, Any] = {
         "vocabulary_size": stats["vocabulary"],
@@ -142,5 +148,6 @@ def compute_index(
         "max_residual": stats["max_residual"],
         "seconds": stats["seconds"],
         "seed": snapshot.seed,
+        "coordinate_indexes": search_stats,
     }
     return IndexContent(arrays=arrays, groups=groups, statistics=statistics, next_group_id=next_id)

@@ -9,11 +9,12 @@ import time
 from dataclasses import dataclass
 from typing import Any
 
-from sqlalchemy import select
+from sqlalchemy import Engine, bindparam, select
 from sqlalchemy.orm import Session
 
 from service.errors import InvalidInputError, NotFoundError
 from service.storage.models import ApiKey
+from service.storage.prepared_read import PreparedRead
 from service.storage.types import utcnow
 
 SCOPES = ("read", "write", "admin")  # each includes the ones before it
@@ -87,12 +88,28 @@ def revoke_key(session: Session, key_id: int) -> KeyInfo:
 
 class KeyVerifier:
     """Checks a presented key, remembering good answers for ``ttl`` seconds so a busy
-    query path does not hit the database on every request."""
+    query path does not hit the database on every request.
 
-    def __init__(self, ttl: float) -> None:
+    With an ``engine``, ``scope_now`` looks a key up itself with one raw indexed read
+    (service.storage.prepared_read): the query fast path uses it, so an expired entry is
+    renewed by the first request that meets it instead of sending every request in flight
+    to the slower route path at once (at 32 connections that burst was the p99 of related
+    documents, once per ``ttl``)."""
+
+    def __init__(self, ttl: float, engine: Engine | None = None) -> None:
         self._ttl = ttl
         self._cache: dict[str, tuple[float, str]] = {}
         self._lock = threading.Lock()
+        self._read = (
+            None
+            if engine is None
+            else PreparedRead(
+                engine,
+                select(ApiKey.scope).where(
+                    ApiKey.key_hash == bindparam("digest"), ApiKey.revoked_at.is_(None)
+                ),
+            )
+        )
 
     def cached_scope(self, raw: str) -> str | None:
         """The scope remembered for this key if it was verified less than ``ttl`` ago."""
@@ -111,11 +128,27 @@ class KeyVerifier:
         scope = session.scalars(
             select(ApiKey.scope).where(ApiKey.key_hash == digest, ApiKey.revoked_at.is_(None))
         ).first()
+        return self._remember(digest, now, scope)
+
+    def scope_now(self, raw: str) -> str | None:
+        """Like ``scope_of``, with the verifier's own engine (blocking: one indexed read).
+        Driver errors propagate as the driver raises them."""
+        if self._read is None:
+            raise RuntimeError("this KeyVerifier was made without an engine")
+        cached = self.cached_scope(raw)
+        if cached is not None:
+            return cached
+        digest = hash_key(raw)
+        now = time.monotonic()  # before the read: the answer is at least this fresh
+        found = self._read.first(digest=digest)
+        return self._remember(digest, now, None if found is None else str(found[0]))
+
+    def _remember(self, digest: str, verified_at: float, scope: str | None) -> str | None:
         with self._lock:
             if scope is None:
                 self._cache.pop(digest, None)
             else:
                 if len(self._cache) > 10_000:
                     self._cache.clear()
-                self._cache[digest] = (now, scope)
+                self._cache[digest] = (verified_at, scope)
         return scope

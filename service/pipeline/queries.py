@@ -23,6 +23,11 @@ from service.errors import InvalidInputError, NotFoundError
 from service.geometry.coordinate_index import HnswSearch, measure_recall
 from service.geometry.distances import distances_to, distances_to_point
 from service.geometry.nearest import ExactSearch
+from service.pipeline.coordinate_indexes import (
+    CANDIDATE_MARGIN,
+    INDEXED_MIN_VERTICES,
+    stored_index,
+)
 from service.pipeline.live_index import Live
 from service.pipeline.placement import Placement, place_row, text_row
 from service.pipeline.query_view import ISOLATED, NO_TERMS, QueryView, coordinate_scale
@@ -159,19 +164,9 @@ def point_coordinates(live: Live, point: QueryPoint, t: float) -> NDArray[np.flo
     return psi_x[1 : m + 1] * coordinate_scale(view.eigenvalues(c), t, m)
 
 
-# Components with at least this many vertices are searched through an HNSW index once
-# it is built (in the background; exact search answers meanwhile). At 45,469 vertices x 40
-# coordinates the exact float64 scan costs 1.0-1.2 ms per query and HNSW 0.08 ms with
-# recall@10 0.98-0.99 from the 27 candidates asked below (bench-query's 100k collection,
-# measured on this machine); below 20,000 the scan costs under ~0.5 ms.
-INDEXED_MIN_VERTICES = 20_000
-# Candidates asked beyond k: the query's own row, rows hidden since the build, and slack
-# for the exact re-ranking by `_measure`.
-CANDIDATE_MARGIN = 17
-
-
 class _BackgroundIndex:
-    """An HNSW index built in a thread; ``ready`` is None until it is usable."""
+    """An HNSW index built in a thread; ``ready`` is None until it is usable. Only for a
+    version stored without its index (made before indexes were stored with versions)."""
 
     def __init__(self, exact: ExactSearch) -> None:
         self.ready: HnswSearch | None = None
@@ -183,12 +178,33 @@ class _BackgroundIndex:
 
     def _build(self, exact: ExactSearch) -> None:
         try:
-            index = HnswSearch(exact.points)
+            # One thread: this process is serving queries meanwhile.
+            index = HnswSearch(exact.points, threads=1)
             recall = measure_recall(index, exact, k=10, candidates=10 + CANDIDATE_MARGIN)
             self.recall = round(recall, 4)
             self.ready = index
         except Exception as exc:
             self.error = f"{type(exc).__name__}: {exc}"
+
+
+@dataclass(frozen=True)
+class _StoredIndex:
+    ready: HnswSearch
+    recall: float
+
+
+def _exact(view: QueryView, c: int, t: float) -> ExactSearch:
+    return view._cached(("search", c, t), lambda: ExactSearch(view.coordinates(c, t)))  # type: ignore[no-any-return]
+
+
+def _coordinate_index(view: QueryView, c: int, t: float) -> _StoredIndex | _BackgroundIndex:
+    """The version's stored index of component ``c``, else one built in the background."""
+    stored = stored_index(
+        view.version.arrays, c, t, int(view.members[c].size), view.n_coordinates(c)
+    )
+    if stored is not None:
+        return _StoredIndex(stored[0], round(stored[1], 4))
+    return _BackgroundIndex(_exact(view, c, t))
 
 
 def _search(view: QueryView, c: int, t: float) -> tuple[ExactSearch | HnswSearch, dict[str, Any]]:
@@ -198,19 +214,17 @@ def _search(view: QueryView, c: int, t: float) -> tuple[ExactSearch | HnswSearch
         m = view.n_coordinates(c)
         exact = ExactSearch(psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :])
         return exact, {"method": "exact"}
-    exact = view._cached(("search", c, t), lambda: ExactSearch(view.coordinates(c, t)))
-    if exact.size < INDEXED_MIN_VERTICES:
-        return exact, {"method": "exact"}
-    holder: _BackgroundIndex = view._cached(("hnsw", c, t), lambda: _BackgroundIndex(exact))
-    if holder.ready is None:
-        return exact, {"method": "exact"}
-    return holder.ready, {"method": "hnsw", "recall": holder.recall}
+    if view.members[c].size >= INDEXED_MIN_VERTICES:
+        holder = view._cached(("hnsw", c, t), lambda: _coordinate_index(view, c, t))
+        if holder.ready is not None:
+            return holder.ready, {"method": "hnsw", "recall": holder.recall}
+    return _exact(view, c, t), {"method": "exact"}
 
 
 def warm_search(view: QueryView) -> None:
-    """Start the search structures of a freshly loaded version's large components (their
-    HNSW indexes build in the background), so the first queries after a publish do not
-    wait for them or fall back to the exact scan for long. For `LiveIndex(on_load=...)`."""
+    """Ready the search structures of a freshly loaded version's large components (read
+    their stored indexes, or start building them in the background), so the first queries
+    after a publish do not wait for them. For `LiveIndex(on_load=...)`."""
     for c, members in enumerate(view.members):
         if members.size >= INDEXED_MIN_VERTICES:
             _search(view, c, view.default_t)

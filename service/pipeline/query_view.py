@@ -21,6 +21,7 @@ import scipy.sparse as sp
 from numpy.typing import NDArray
 from sqlalchemy import Connection, select
 
+from service.geometry.coordinate_index import component_coordinates, coordinate_scale
 from service.geometry.diffusion import DiffusionMap
 from service.pipeline.collection_settings import CollectionSettings
 from service.pipeline.documents import tokenizer_for
@@ -32,7 +33,14 @@ from service.text.tokenize import Tokenizer
 DOCUMENTS = Document.__table__
 TERMS = Term.__table__
 
-__all__ = ["ISOLATED", "MAPPED", "NO_TERMS", "QueryView", "build_query_view"]
+__all__ = [
+    "ISOLATED",
+    "MAPPED",
+    "NO_TERMS",
+    "QueryView",
+    "build_query_view",
+    "coordinate_scale",
+]
 
 
 @dataclass(frozen=True, eq=False)
@@ -135,10 +143,7 @@ class QueryView:
 
         def make() -> NDArray[np.float32]:
             lam, psi, _ = self.spectrum(c)
-            m = self.n_coordinates(c)
-            return np.ascontiguousarray(
-                (psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :]).astype(np.float32)
-            )
+            return component_coordinates(psi, lam, t, self.n_coordinates(c))
 
         return self._cached(("coords", c, float(t)), make)  # type: ignore[no-any-return]
 
@@ -147,12 +152,6 @@ class QueryView:
         if stored is None or c >= stored.size:
             return None
         return float(stored[c])
-
-
-def coordinate_scale(lam: NDArray[np.float64], t: float, m: int) -> NDArray[np.float64]:
-    """``lambda_k^t`` for k = 1..m; a negative eigenvalue keeps its sign (integer-t value)."""
-    head = lam[1 : m + 1]
-    return np.sign(head) * np.abs(head) ** t
 
 
 def _vertex_rows(

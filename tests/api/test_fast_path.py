@@ -8,6 +8,7 @@ must hand on (bad parameters, unknown ids, keys it has not seen, bodies it canno
 
 from __future__ import annotations
 
+import sqlite3
 from collections.abc import Iterator
 from typing import Any
 
@@ -16,6 +17,8 @@ from sqlalchemy import Engine
 
 from service.api.app import create_app
 from service.config import Settings
+from service.pipeline.keys import create_key, revoke_key
+from service.storage.session import make_session_factory
 from tests.factories import TestClient, auth, make_keys
 from tests.query_fixtures import BuiltCollection, built_collection
 
@@ -211,3 +214,38 @@ def test_a_deletion_is_seen_by_the_next_fast_answer(
         after = _same(fast, plain, "GET", url, headers=auth(keys["read"])).json()["neighbors"]
         assert gone not in {n["id"] for n in after} and len(after) == 5
     assert _counts(fast) == (2, 1)  # before; after the refresh (the route did that one)
+
+
+def test_an_expired_key_is_checked_again_by_the_fast_path_itself(
+    engine: Engine, database_url: str, built: BuiltCollection
+) -> None:
+    # With nothing remembered (ttl 0) every request reads the key directly: the fast path
+    # still answers, and a revoked key is refused on the very next request.
+    with make_session_factory(engine)() as session:
+        raw, info = create_key(session, "reader", "read")
+    settings = Settings(database_url=database_url, auth_cache_seconds=0)
+    with TestClient(create_app(settings, engine=engine), raise_server_exceptions=False) as fast:
+        url = PLAIN_GETS[0]
+        assert fast.get(url, headers=auth(raw)).status_code == 200  # loads the index
+        fast.app.state.fast_path.answered = fast.app.state.fast_path.declined = 0  # type: ignore[attr-defined]
+        assert fast.get(url, headers=auth(raw)).status_code == 200
+        assert _counts(fast) == (1, 0)
+        with make_session_factory(engine)() as session:
+            revoke_key(session, info.id)
+        refused = fast.get(url, headers=auth(raw))
+        assert refused.status_code == 401, refused.text
+        assert _counts(fast) == (1, 1)
+
+
+def test_a_driver_error_in_the_fast_checks_is_handed_to_the_route(
+    pair: tuple[TestClient, TestClient, dict[str, str]], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    fast, plain, keys = pair
+
+    def broken(raw: str) -> str | None:
+        raise sqlite3.OperationalError("disk I/O error")
+
+    monkeypatch.setattr(fast.app.state.key_verifier, "scope_now", broken)  # type: ignore[attr-defined]
+    response = _same(fast, plain, "GET", PLAIN_GETS[0], headers=auth(keys["read"]))
+    assert response.status_code == 200
+    assert _counts(fast) == (0, 1)

@@ -147,3 +147,10 @@ def test_nearest_rank_percentiles() -> None:
     assert [percentile(values, q) for q in (0.01, 0.5, 0.99, 1.0)] == [1.0, 50.0, 99.0, 100.0]
     assert percentile([7.0], 0.99) == 7.0
     assert percentile([], 0.5) is None
+
+
+def test_the_load_runs_on_uvloop_when_it_is_installed() -> None:
+    from service.bench.load_client import _event_loop_runner
+
+    uvloop = pytest.importorskip("uvloop")
+    assert _event_loop_runner() is uvloop.run

@@ -97,3 +97,26 @@ def test_measure_recall_counts_a_tie_at_the_kth_place_as_found() -> None:
     answers = {0: [0, 2], 1: [1, 0], -1: [2, 0]}
     index = _Fixed(answers)
     assert measure_recall(index, exact, k=2, sample=3) == 1.0  # type: ignore[arg-type]
+
+
+def test_hnsw_index_survives_its_bytes() -> None:
+    points = _points(3000)
+    index = HnswSearch(points)
+    data = index.to_bytes()
+    data.setflags(write=False)  # as a loaded version's arrays are
+    again = HnswSearch.from_bytes(data)
+    assert again.size == 3000 and again.dimension == points.shape[1]
+    for row in (0, 1234, 2999):
+        a, da = index.search(points[row], 12)
+        b, db = again.search(points[row], 12)
+        assert a.tolist() == b.tolist() and np.allclose(da, db)
+
+
+def test_bytes_of_another_kind_of_index_are_refused() -> None:
+    import faiss
+    import pytest
+
+    flat = faiss.IndexFlatL2(4)
+    flat.add(np.zeros((3, 4), dtype=np.float32))
+    with pytest.raises(ValueError, match="not an HNSW index"):
+        HnswSearch.from_bytes(faiss.serialize_index(flat))

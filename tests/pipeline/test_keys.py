@@ -77,3 +77,21 @@ def test_verifier_cache_trusts_a_key_for_its_ttl_only(engine: Engine) -> None:
         # Documented: a revoked key keeps working until the cache entry expires.
         assert cached.scope_of(session, raw) == "read"
         assert KeyVerifier(ttl=0).scope_of(session, raw) is None
+
+
+def test_direct_look_up_renews_and_forgets_like_scope_of(engine: Engine) -> None:
+    factory = make_session_factory(engine)
+    with factory() as session:
+        raw, info = create_key(session, "reader", "read")
+    with pytest.raises(RuntimeError):
+        KeyVerifier(ttl=0).scope_now(raw)
+    direct = KeyVerifier(ttl=0, engine=engine)
+    assert direct.scope_now(raw) == "read"
+    assert direct.scope_now(raw + "x") is None
+    remembered = KeyVerifier(ttl=3600, engine=engine)
+    assert remembered.scope_now(raw) == "read"
+    with factory() as session:
+        revoke_key(session, info.id)
+    assert direct.scope_now(raw) is None  # nothing remembered: refused at once
+    assert remembered.scope_now(raw) == "read"  # remembered for its ttl, as documented
+    assert remembered.cached_scope(raw) == "read"

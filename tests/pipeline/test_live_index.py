@@ -79,3 +79,32 @@ def test_warm_search_starts_the_index_of_large_components(
     assert large  # the corpus has a component of at least 50 documents
     for c in large:
         assert ("hnsw", c, view.default_t) in view._cache
+
+
+def test_a_version_built_with_its_coordinate_index_is_searched_through_it(
+    engine: Engine, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from service.pipeline import coordinate_indexes, queries
+
+    # Both the build and the queries take the small test corpus's components as large.
+    monkeypatch.setattr(coordinate_indexes, "INDEXED_MIN_VERTICES", 50)
+    monkeypatch.setattr(queries, "INDEXED_MIN_VERTICES", 50)
+    built_collection(engine, "stored")
+    index = LiveIndex(
+        engine,
+        VersionCache(make_session_factory(engine), check_seconds=0),
+        on_load=queries.warm_search,
+    )
+    live = index.get("stored")
+    view = live.view
+    stats = view.version.statistics["coordinate_indexes"]
+    assert stats and all(s["vertices"] >= 50 for s in stats)
+    for entry in stats:
+        holder = view._cache[("hnsw", entry["component"], view.default_t)]
+        assert isinstance(holder, queries._StoredIndex)  # read back, not rebuilt
+        assert holder.recall == entry["recall"]
+    c = stats[0]["component"]
+    row = next(r for r, v in enumerate(view.vertex.tolist()) if v >= 0 and view.component[v] == c)
+    answer = queries.neighbors(engine, live, view.external_ids[row], 5, None)
+    assert answer["search"] == {"method": "hnsw", "recall": stats[0]["recall"]}
+    assert len(answer["neighbors"]) == 5
