@@ -24,6 +24,7 @@ from sqlalchemy import Connection, select
 from service.geometry.coordinate_index import component_coordinates, coordinate_scale
 from service.geometry.diffusion import DiffusionMap
 from service.pipeline.collection_settings import CollectionSettings
+from service.pipeline.coordinate_indexes import trimmed_eigenvalues
 from service.pipeline.documents import tokenizer_for
 from service.pipeline.mapping import ISOLATED, MAPPED, NO_TERMS
 from service.pipeline.version_cache import LoadedVersion
@@ -84,9 +85,7 @@ class QueryView:
 
     def eigenvalues(self, c: int) -> NDArray[np.float64]:
         """The component's stored eigenvalues, trivial one first, zero padding removed."""
-        lam = np.asarray(self.version.arrays["eigenvalues"][c], dtype=np.float64)
-        width = int(np.count_nonzero(lam)) or 1
-        return lam[:width]
+        return trimmed_eigenvalues(self.version.arrays["eigenvalues"][c])
 
     # --- per component arrays, computed once and kept -------------------------------
 
