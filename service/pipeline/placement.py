@@ -20,6 +20,7 @@ from numpy.typing import NDArray
 
 from service.errors import InvalidInputError
 from service.geometry.kernel import bandwidth, kernel_weights
+from service.geometry.nearest import top_k_largest
 from service.geometry.nystrom import extend
 from service.pipeline.query_view import QueryView
 from service.text.sparse_products import combine_columns
@@ -82,10 +83,7 @@ def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
         )
     cosines = combine_columns(view.vertex_tfidf_csc, row.indices, row.data)
     k = view.neighbors
-    n_v = cosines.size
-    take = min(k, n_v)
-    top = np.argpartition(-cosines, take - 1)[:take] if take < n_v else np.arange(n_v)
-    top_all = top[np.lexsort((top, -cosines[top]))]  # best first, ties by vertex id
+    top_all = top_k_largest(cosines, k)  # best first, ties by vertex id
     top = top_all[cosines[top_all] > 0]
     if top.size == 0:
         raise InvalidInputError(

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from service.geometry.coordinate_index import HnswSearch, measure_recall
-from service.geometry.nearest import ExactSearch, top_k_smallest
+from service.geometry.nearest import ExactSearch, top_k_largest, top_k_smallest
 
 
 def _points(n: int = 3000, m: int = 12, seed: int = 0) -> np.ndarray:
@@ -19,6 +20,42 @@ def test_top_k_smallest_orders_by_value_then_index() -> None:
     assert top_k_smallest(values, 3).tolist() == [4, 1, 3]
     assert top_k_smallest(values, 10).tolist() == [4, 1, 3, 2, 0]
     assert top_k_smallest(values, 0).size == 0
+
+
+def _full_sort(values: np.ndarray, k: int, largest: bool) -> list[int]:
+    key = -values if largest else values
+    return np.lexsort((np.arange(values.size), key))[:k].tolist()
+
+
+@pytest.mark.parametrize("largest", [False, True])
+@pytest.mark.parametrize("shape", ["distinct", "coarse", "mostly_zero", "constant"])
+@pytest.mark.parametrize("n", [1, 37, 4096, 99_069])
+def test_top_k_matches_a_full_stable_sort(largest: bool, shape: str, n: int) -> None:
+    # n = 99,069 takes the blocked threshold path (>= 4 groups of 128 per wanted value);
+    # coarse and constant values put ties at the k-th place, where index order decides.
+    rng = np.random.default_rng(n)
+    values = rng.random(n)
+    if shape == "coarse":
+        values = np.round(values * 4) / 4
+    elif shape == "mostly_zero":
+        values[rng.random(n) < 0.8] = 0.0
+    elif shape == "constant":
+        values = np.full(n, 0.25)
+    pick = top_k_largest if largest else top_k_smallest
+    for k in (0, 1, 15, 27, 200, n, n + 5):
+        assert pick(values, k).tolist() == _full_sort(values, min(k, n), largest), k
+
+
+def test_top_k_puts_nan_last() -> None:
+    values = np.random.default_rng(3).random(60_000)
+    values[::7] = np.nan
+    for k in (10, 9000):
+        for largest, pick in ((False, top_k_smallest), (True, top_k_largest)):
+            got = pick(values, k)
+            assert not np.isnan(values[got]).any()
+            assert got.tolist() == _full_sort(
+                np.nan_to_num(values, nan=-np.inf if largest else np.inf), k, largest
+            )
 
 
 def test_exact_search_matches_a_full_sort() -> None:
