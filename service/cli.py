@@ -108,8 +108,8 @@ def cmd_serve(args: argparse.Namespace) -> int:
 def _serve_processes(settings: Settings, workers: int, log_level: str) -> None:
     from service.api.worker_pool import run_pool
 
-    # Each worker process builds its own app and engine from the same environment, and
-    # binds the port itself (SO_REUSEPORT), so the kernel spreads connections over them.
+    # Each worker process builds its own app and engine from the same environment; they
+    # share the supervisor's listening socket and take turns by load (balanced_accept).
     run_pool(workers, settings.host, settings.port, log_level=log_level)
 
 

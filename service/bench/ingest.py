@@ -146,6 +146,22 @@ def _cpu_seconds(pid: int) -> float | None:
     return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
 
 
+def _pool_accepting(supervisor: int) -> int:
+    """How many workers of the pool under ``supervisor`` accept connections (from the
+    board named on their command lines; 0 while none is started)."""
+    from service.api.balanced_accept import LoadBoard
+    from service.bench.query_server import process_tree
+
+    for pid in process_tree(supervisor):
+        try:
+            argv = Path(f"/proc/{pid}/cmdline").read_bytes().split(b"\0")
+        except OSError:
+            continue
+        if b"--board" in argv:
+            return LoadBoard.accepting(Path(argv[argv.index(b"--board") + 1].decode()))
+    return 0
+
+
 @contextmanager
 def running_server(
     database_url: str,
@@ -183,10 +199,13 @@ def running_server(
             if proc.poll() is not None:
                 raise RuntimeError(f"the server exited with {proc.returncode}: {_tail(log.name)}")
             try:
-                if httpx.get(f"{base}/healthz", timeout=1).status_code == 200:
-                    break
+                answers = httpx.get(f"{base}/healthz", timeout=1).status_code == 200
             except httpx.TransportError:
-                pass
+                answers = False
+            # A pool answers once its first worker accepts; connections opened before the
+            # others do would all stay with that one.
+            if answers and (workers == 1 or _pool_accepting(proc.pid) == workers):
+                break
             if time.monotonic() > deadline:
                 raise RuntimeError(f"the server did not answer within 60 s: {_tail(log.name)}")
             time.sleep(0.1)

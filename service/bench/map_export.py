@@ -136,6 +136,7 @@ def synthetic_live(n_docs: int, seed: int = 0) -> Live:
         members=members,
         tfidf=empty,
         vertex_tfidf_csc=empty.tocsc(),
+        vertex_doc=on_graph.astype(np.int64),
         term_column={},
         global_term_column={},
         tokenizer=make_tokenizer("english", False),

@@ -23,7 +23,7 @@ from service.geometry.kernel import bandwidth, kernel_weights
 from service.geometry.nearest import top_k_largest
 from service.geometry.nystrom import extend
 from service.pipeline.query_view import QueryView
-from service.text.sparse_products import combine_columns
+from service.text.sparse_products import combine_columns, row_dots
 from service.text.weighting import weight_row
 
 __all__ = ["Placement", "counts_row", "place_row", "text_row"]
@@ -73,6 +73,23 @@ def counts_row(
     return _row(view, columns, kept)
 
 
+def _nearest_vertices(
+    view: QueryView, row: sp.csr_matrix, k: int
+) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
+    """The ``k`` vertices of highest cosine with the row, best first (ties by vertex id),
+    with those cosines in float64.
+
+    Every vertex is scored in float32 (`combine_columns`); the chosen ones are scored
+    again in float64 from their TF-IDF rows, since the kernel weights and the
+    same-text test (a margin of 1e-6) use the value."""
+    rough = combine_columns(view.vertex_tfidf_csc, row.indices, row.data)
+    chosen = top_k_largest(rough, k)
+    doc_rows = view.vertex_doc[chosen]
+    exact = row_dots(view.tfidf, doc_rows, row.indices, row.data.astype(np.float64))
+    order = np.lexsort((chosen, -exact))
+    return chosen[order], exact[order]
+
+
 def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
     """Nystrom placement of one TF-IDF row; raises InvalidInputError when it has no term."""
     if row.nnz == 0:
@@ -81,20 +98,19 @@ def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
             "cannot be placed on the map",
             code="no_terms",
         )
-    cosines = combine_columns(view.vertex_tfidf_csc, row.indices, row.data)
     k = view.neighbors
-    top_all = top_k_largest(cosines, k)  # best first, ties by vertex id
-    top = top_all[cosines[top_all] > 0]
+    top_all, top_cos = _nearest_vertices(view, row, k)
+    top = top_all[top_cos > 0]
     if top.size == 0:
         raise InvalidInputError(
             "the text shares no term with any indexed document, so it has no neighbours",
             code="no_neighbors",
         )
-    cos = cosines[top]
+    cos = top_cos[top_cos > 0]
     d = np.clip(1.0 - cos, 0.0, None)
     # Its bandwidth counts the k nearest whatever their cosine, as the graph does (a
     # neighbour at cosine <= 0 is at distance >= 1).
-    all_d = np.clip(1.0 - cosines[top_all], 0.0, None)
+    all_d = np.clip(1.0 - top_cos, 0.0, None)
     sigma_x = bandwidth(
         np.pad(all_d, (0, k - all_d.size), constant_values=1.0), k, view.sigma_floor
     )

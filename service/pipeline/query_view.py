@@ -60,6 +60,7 @@ class QueryView:
     members: list[NDArray[np.int64]]  # vertices of each component, ascending
     tfidf: sp.csr_matrix  # (n, V) unit rows
     vertex_tfidf_csc: sp.csc_matrix  # (n_v, V): drafts' cosine to every vertex
+    vertex_doc: NDArray[np.int64]  # (n_v,) the row of tfidf that vertex_tfidf_csc holds
     term_column: dict[str, int]  # working vocabulary: term -> column
     global_term_column: dict[int, int]  # global term id -> column
     tokenizer: Tokenizer
@@ -240,6 +241,7 @@ def build_query_view(conn: Connection, version: LoadedVersion) -> QueryView:
         members=members,
         tfidf=tfidf,
         vertex_tfidf_csc=tfidf[vertex_doc].tocsc(),
+        vertex_doc=vertex_doc,
         term_column={t: i for i, t in enumerate(terms) if t},
         global_term_column={int(t): i for i, t in enumerate(term_ids.tolist())},
         tokenizer=tokenizer_for(settings.language, settings.stemming),

@@ -1,4 +1,4 @@
-"""The worker pool for real: processes, one port, connections spread, restart, stop."""
+"""The worker pool for real: processes, one port, connections spread evenly, restart, stop."""
 
 from __future__ import annotations
 
@@ -14,12 +14,13 @@ from pathlib import Path
 import httpx
 import pytest
 
-from service.api.worker_pool import reuseport_socket
+from service.api.balanced_accept import LoadBoard
+from service.api.worker_pool import listening_socket
 from service.bench.query_server import process_tree
 from service.storage.schema import upgrade
 from service.storage.session import make_engine
 
-pytestmark = pytest.mark.skipif(not hasattr(socket, "SO_REUSEPORT"), reason="needs SO_REUSEPORT")
+pytestmark = pytest.mark.skipif(not Path("/proc/self/fd").is_dir(), reason="reads /proc (Linux)")
 
 
 def _free_port() -> int:
@@ -47,15 +48,49 @@ def _workers(pid: int) -> list[int]:
     return [p for p in process_tree(pid) if p != pid]
 
 
-def test_sockets_of_two_processes_share_a_port() -> None:
-    port = _free_port()
-    first = reuseport_socket("127.0.0.1", port)
-    second = reuseport_socket("127.0.0.1", port)  # a plain socket would get EADDRINUSE
+def test_a_child_process_accepts_from_the_inherited_socket() -> None:
+    listener = listening_socket("127.0.0.1", 0)
+    port = listener.getsockname()[1]
+    child_code = (
+        "import socket, sys\n"
+        "s = socket.socket(fileno=int(sys.argv[1]))\n"
+        "c, _ = s.accept()\n"
+        "c.sendall(b'from the child')\n"
+        "c.close()\n"
+    )
+    fd = listener.fileno()
+    child = subprocess.Popen([sys.executable, "-c", child_code, str(fd)], pass_fds=(fd,))
     try:
-        assert first.getsockname() == second.getsockname() == ("127.0.0.1", port)
+        with socket.create_connection(("127.0.0.1", port), timeout=30) as conn:
+            conn.settimeout(30)
+            assert conn.recv(100) == b"from the child"
+        assert child.wait(timeout=30) == 0
     finally:
-        first.close()
-        second.close()
+        listener.close()
+        if child.poll() is None:
+            child.kill()
+
+
+def _established_to(pid: int, port: int) -> int:
+    """How many established TCP connections on local ``port`` process ``pid`` holds."""
+    inodes = set()
+    for fd in Path(f"/proc/{pid}/fd").iterdir():
+        try:
+            target = os.readlink(fd)
+        except OSError:
+            continue
+        if target.startswith("socket:["):
+            inodes.add(target[8:-1])
+    count = 0
+    for table in ("/proc/net/tcp", "/proc/net/tcp6"):
+        if not Path(table).exists():
+            continue
+        for line in Path(table).read_text().splitlines()[1:]:
+            fields = line.split()
+            local_port = int(fields[1].rsplit(":", 1)[1], 16)
+            if local_port == port and fields[3] == "01" and fields[9] in inodes:
+                count += 1
+    return count
 
 
 def test_a_pool_serves_spreads_connections_restarts_and_stops(tmp_path: Path) -> None:
@@ -74,8 +109,23 @@ def test_a_pool_serves_spreads_connections_restarts_and_stops(tmp_path: Path) ->
     try:
         _wait(lambda: _answers(base) and len(_workers(pool.pid)) == 2)
         workers = _workers(pool.pid)
-        # Many fresh connections: the kernel hands them to both workers' sockets. Each
-        # worker's CPU time grows only with what it serves.
+        _wait(lambda: _accepting(workers) == 2)  # the second may still be importing
+        # A client that opens its pool of keep-alive connections at once: the workers
+        # split them evenly (a shared socket had given one worker all of them).
+        pool_of = [socket.create_connection(("127.0.0.1", port)) for _ in range(64)]
+        try:
+            for conn in pool_of:
+                conn.sendall(b"GET /healthz HTTP/1.1\r\nHost: pool\r\n\r\n")
+            for conn in pool_of:
+                assert conn.recv(65536).startswith(b"HTTP/1.1 200")
+            held = [_established_to(p, port) for p in workers]
+            assert sum(held) == 64, held
+            assert abs(held[0] - held[1]) <= 4, held
+        finally:
+            for conn in pool_of:
+                conn.close()
+
+        # Fresh connections one after another reach both workers too.
         before = {p: _cpu_ticks(p) for p in workers}
         for _ in range(300):
             assert _fresh_connection_get(port).startswith(b"HTTP/1.1 200")
@@ -97,6 +147,13 @@ def test_a_pool_serves_spreads_connections_restarts_and_stops(tmp_path: Path) ->
         if pool.poll() is None:
             pool.kill()
             pool.wait()
+
+
+def _accepting(workers: list[int]) -> int:
+    """How many slots of the pool's board are taken by a worker that accepts."""
+    argv = Path(f"/proc/{workers[0]}/cmdline").read_bytes().split(b"\0")
+    board = Path(argv[argv.index(b"--board") + 1].decode())
+    return LoadBoard.accepting(board)
 
 
 def _fresh_connection_get(port: int) -> bytes:

@@ -45,6 +45,17 @@ def test_combine_columns_equals_scipy_product(seed: int) -> None:
     x[cols] = vals
     np.testing.assert_allclose(combine_columns(matrix, cols, vals), matrix @ x, atol=1e-14)
     assert combine_columns(matrix, np.array([], dtype=np.int64), np.array([])).shape == (400,)
+    # float32 data, as the query views store it: float32 sums, within float32 rounding.
+    single = matrix.astype(np.float32)
+    got = combine_columns(single, cols, vals)
+    assert got.dtype == np.float32
+    np.testing.assert_allclose(got, single.astype(np.float64) @ x, atol=1e-5)
+
+
+def test_combine_columns_refuses_a_column_outside_the_matrix() -> None:
+    matrix = sp.random(10, 5, density=0.5, format="csc", random_state=0)
+    with pytest.raises(IndexError):
+        combine_columns(matrix, np.array([5]), np.array([1.0]))
 
 
 def test_gather_entries_lists_every_entry_of_the_chosen_rows_in_order() -> None:
