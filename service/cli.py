@@ -89,6 +89,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
     import uvicorn  # the web stack is imported only by the commands that serve
 
     from service.api.app import create_app
+    from service.api.coalescing_writes import http_protocol
     from service.api.factory import single_threaded_blas
     from service.cli_build import embedded_worker
 
@@ -99,7 +100,13 @@ def cmd_serve(args: argparse.Namespace) -> int:
         if args.workers == 1:
             single_threaded_blas()
             app = create_app(settings, engine)
-            uvicorn.run(app, host=settings.host, port=settings.port, log_level=log_level)
+            uvicorn.run(
+                app,
+                host=settings.host,
+                port=settings.port,
+                log_level=log_level,
+                http=http_protocol(),
+            )
             return 0
         _serve_processes(settings, args.workers, log_level)
     return 0
@@ -353,12 +360,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
         import uvicorn
 
         from service.api.app import create_app
+        from service.api.coalescing_writes import http_protocol
         from service.api.factory import single_threaded_blas
 
         if args.open:
             open_when_listening(map_page_url(url, DEMO_COLLECTION, keys["read"]), settings.port)
         single_threaded_blas()  # the build is done; from here on this process answers queries
-        uvicorn.run(create_app(settings, engine), host="127.0.0.1", port=settings.port)
+        app = create_app(settings, engine)
+        uvicorn.run(app, host="127.0.0.1", port=settings.port, http=http_protocol())
     return 0
 
 

@@ -142,12 +142,14 @@ def _stop_all(procs: Sequence[subprocess.Popen[bytes]]) -> None:
 def _run_worker(args: argparse.Namespace) -> None:
     import uvicorn
 
+    from service.api.coalescing_writes import http_protocol
+
     config = uvicorn.Config(
         "service.api.factory:app_from_environment",
         factory=True,
         log_level=args.log_level,
         loop=args.loop,
-        http=args.http,
+        http=http_protocol(args.http),
         access_log=args.access_log,
     )
     from service.api.pool_server import PoolServer

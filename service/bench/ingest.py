@@ -162,6 +162,17 @@ def _pool_accepting(supervisor: int) -> int:
     return 0
 
 
+def _coalescing(uvicorn_args: Sequence[str]) -> list[str]:
+    """uvicorn's options with ``--http NAME`` as the coalescing protocol that ``tidemap
+    serve`` and the worker pool use (service.api.coalescing_writes)."""
+    out = list(uvicorn_args)
+    if "--http" not in out:
+        out += ["--http", "auto"]
+    at = out.index("--http") + 1
+    out[at] = f"service.api.coalescing_writes:{out[at]}"
+    return out
+
+
 @contextmanager
 def running_server(
     database_url: str,
@@ -189,7 +200,7 @@ def running_server(
         command = [
             sys.executable, "-m", "uvicorn", "service.api.factory:app_from_environment",
             "--factory", "--host", "127.0.0.1", "--port", str(port),
-            "--log-level", "warning", "--no-access-log", *uvicorn_args,
+            "--log-level", "warning", "--no-access-log", *_coalescing(uvicorn_args),
         ]  # fmt: skip
     proc = subprocess.Popen(command, env=env, stdout=log, stderr=subprocess.STDOUT)
     base = f"http://127.0.0.1:{port}"
