@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -475,6 +476,19 @@ def _port(text: str) -> int:
     return value
 
 
+MAX_DEFAULT_SERVER_WORKERS = 4  # each worker holds its own copy of the index
+
+
+def default_server_workers() -> int:
+    """`bench query` measures the server as it should run on this machine: one API
+    process per core (one process answers on one core), within a memory-minded cap."""
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        cores = os.cpu_count() or 1
+    return max(1, min(MAX_DEFAULT_SERVER_WORKERS, cores))
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="tidemap",
@@ -625,8 +639,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument(
         "--server-workers",
         type=_positive,
-        default=1,
-        help="API worker processes, as `serve --workers` (default 1)",
+        default=default_server_workers(),
+        help="API worker processes, as `serve --workers` (default one per core this "
+        f"process may use, at most {MAX_DEFAULT_SERVER_WORKERS}: here "
+        f"{default_server_workers()})",
     )
     p.add_argument("--endpoints", metavar="A,B", help="a comma-separated subset (default all)")
     p.add_argument(

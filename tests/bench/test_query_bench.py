@@ -103,3 +103,22 @@ def test_request_targets_use_stored_ids_and_unstored_drafts() -> None:
         {"text": "a draft about tides", "k": 10},
     )
     assert targets["distance"][0].startswith("/v1/collections/bench-query/distance?from=b000000")
+
+
+def test_the_cli_runs_one_server_worker_per_usable_core_within_the_cap(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from service import cli as cli_module
+
+    def parsed_workers() -> int:
+        args = cli_module.build_parser().parse_args(["bench", "query"])
+        return int(args.server_workers)
+
+    monkeypatch.setattr(cli_module.os, "sched_getaffinity", lambda pid: {0, 1})
+    assert parsed_workers() == 2
+    monkeypatch.setattr(cli_module.os, "sched_getaffinity", lambda pid: set(range(64)))
+    assert parsed_workers() == cli_module.MAX_DEFAULT_SERVER_WORKERS
+    monkeypatch.setattr(cli_module.os, "sched_getaffinity", lambda pid: {3})
+    assert parsed_workers() == 1
+    explicit = cli_module.build_parser().parse_args(["bench", "query", "--server-workers", "3"])
+    assert explicit.server_workers == 3
