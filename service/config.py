@@ -79,6 +79,11 @@ class Settings(BaseSettings):
         description="Back-off before the first retry of a build; doubled for each further "
         "attempt (at most 10 minutes).",
     )
+    preload_indexes: bool = Field(
+        default=True,
+        description="Load every collection's active index when an API process starts, "
+        "before it takes connections, so no first query waits for the load.",
+    )
     version_check_seconds: float = Field(
         default=2.0,
         ge=0.0,

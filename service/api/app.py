@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
+
 from fastapi import FastAPI
 from sqlalchemy import Engine
 
@@ -21,10 +24,21 @@ from service.api.routes import (
 from service.config import Settings
 from service.pipeline.keys import KeyVerifier
 from service.pipeline.live_index import LiveIndex
+from service.pipeline.preload import preload_active_indexes
 from service.pipeline.queries import warm_search
 from service.pipeline.version_cache import VersionCache
 from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory
+
+
+@asynccontextmanager
+async def _lifespan(app: FastAPI) -> AsyncIterator[None]:
+    """Before the server takes connections: the active indexes, when so configured (it
+    blocks the loop on purpose; nothing is served yet)."""
+    app.state.preload = None
+    if app.state.settings.preload_indexes:
+        app.state.preload = preload_active_indexes(app.state.engine, app.state.live_index)
+    yield
 
 
 def create_app(
@@ -36,6 +50,7 @@ def create_app(
     engine = engine or make_engine(settings.database_url)
     require_current(engine)
     app = FastAPI(
+        lifespan=_lifespan,
         title="Tidemap",
         version="1",
         summary="A diffusion-geometry map of a text archive.",

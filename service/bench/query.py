@@ -10,7 +10,8 @@
    --workers W`` runs them, no embedded worker) is started on 127.0.0.1
    (``service.bench.ingest.running_server``).
 3. For each endpoint of ENDPOINTS the server serves (read from its OpenAPI document),
-   one request is sent alone (the first query of a process loads the index version),
+   one request is sent alone (its time is ``first_ms``: with TIDEMAP_PRELOAD_INDEXES
+   off, the first query of a process loads the index version),
    then another process (``service.bench.load_client``) runs a warm-up and the measured
    closed loop of ``concurrency`` keep-alive connections for ``seconds``.
 
@@ -62,7 +63,7 @@ COLLECTION = "bench-query"
 N_DRAFTS = 200  # invented with the stored documents, not stored
 N_TARGETS = 1000  # distinct requests built per endpoint
 N_QUERY_IDS = 2000  # mapped documents whose ids the requests draw from
-FIRST_REQUEST_SECONDS = 60.0  # the first query loads the index version
+FIRST_REQUEST_SECONDS = 60.0  # the first query may load the index version
 KEY_NAME = "bench-query"
 Progress = Callable[[str], None]
 Body = dict[str, Any] | None
