@@ -61,6 +61,7 @@ __all__ = [
     "MAX_NAME",
     "GroupTable",
     "get_group",
+    "group_names",
     "group_table",
     "list_groups",
     "month_codes",
@@ -215,7 +216,8 @@ def _make_table(live: Live, published: NDArray[np.int64]) -> GroupTable:
 # --- answers -----------------------------------------------------------------------
 
 
-def _names(engine: Engine, collection_id: int) -> dict[int, str]:
+def group_names(engine: Engine, collection_id: int) -> dict[int, str]:
+    """The editors' names of a collection's groups, by stable id (one query)."""
     with engine.connect() as conn:
         return {
             int(sid): name
@@ -268,10 +270,12 @@ def _find(live: Live, table: GroupTable, stable_id: int) -> LiveGroup:
     return group
 
 
-def list_groups(engine: Engine, live: Live) -> dict[str, Any]:
-    """GET .../clusters: every group of the active version, largest first."""
+def list_groups(engine: Engine, live: Live, names: dict[int, str] | None = None) -> dict[str, Any]:
+    """GET .../clusters: every group of the active version, largest first (``names``:
+    the editors' names when the caller has read them already)."""
     table = group_table(engine, live)
-    names = _names(engine, live.view.version.collection_id)
+    if names is None:
+        names = group_names(engine, live.view.version.collection_id)
     return _header(live) | {
         "clusters": [_group_out(live, table.groups[g], names.get(g)) for g in table.order],
         "ungrouped": table.ungrouped,
@@ -354,7 +358,7 @@ def get_group(
         raise InvalidInputError(f"limit must lie in 1..{MAX_LIMIT}, got {limit}", {"limit": limit})
     table = group_table(engine, live)
     group = _find(live, table, stable_id)
-    names = _names(engine, live.view.version.collection_id)
+    names = group_names(engine, live.view.version.collection_id)
     members, next_cursor = _members(live, table, group, cursor, limit)
     return (
         _header(live)

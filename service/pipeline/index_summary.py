@@ -84,6 +84,19 @@ def _no_index(collection: str, building: Any) -> ConflictError:
     )
 
 
+def snapshot_ids(conn: Any, version: Any) -> np.ndarray:
+    """The documents the version's snapshot held (with terms or without), sorted."""
+    ids = index_store.load_arrays(conn, int(version.id), [DOC_IDS, EXCLUDED_DOC_IDS])
+    return np.sort(
+        np.concatenate(
+            [
+                ids.get(DOC_IDS, np.zeros(0, np.int64)),
+                ids.get(EXCLUDED_DOC_IDS, np.zeros(0, np.int64)),
+            ]
+        ).astype(np.int64)
+    )
+
+
 def index_summary(session: Session, collection: str) -> dict[str, Any]:
     """The active version's size, spectrum, groups and staleness; 409 without one."""
     conn = session.connection()
@@ -96,15 +109,6 @@ def index_summary(session: Session, collection: str) -> dict[str, Any]:
     if coll.active_version_id is None:
         raise _no_index(collection, building)
     version = index_store.version_row(conn, int(coll.active_version_id))
-    ids = index_store.load_arrays(conn, int(version.id), [DOC_IDS, EXCLUDED_DOC_IDS])
-    snapshot_ids = np.sort(
-        np.concatenate(
-            [
-                ids.get(DOC_IDS, np.zeros(0, np.int64)),
-                ids.get(EXCLUDED_DOC_IDS, np.zeros(0, np.int64)),
-            ]
-        ).astype(np.int64)
-    )
     stats = dict(version.statistics or {})
     summary: dict[str, Any] = {
         "collection": collection,
@@ -116,12 +120,17 @@ def index_summary(session: Session, collection: str) -> dict[str, Any]:
     summary |= {key: stats.get(key) for key in SUMMARY_KEYS}
     summary["groups"] = stats.get("groups")
     summary["parameters"] = dict(version.parameters or {})
-    summary["staleness"] = staleness(
-        session, int(coll.id), int(version.snapshot_change_count), snapshot_ids
-    )
-    summary["staleness"]["changes_since"] = int(coll.change_count) - int(
-        version.snapshot_change_count
-    )
+    changes_since = int(coll.change_count) - int(version.snapshot_change_count)
+    if changes_since == 0:
+        # Every write moves the change count: none since the snapshot, nothing is stale
+        # (the id arrays and the 100k-row count behind `staleness` are skipped: 5.8 ms
+        # to 0.6 ms per summary at 100k).
+        summary["staleness"] = {"added": 0, "changed": 0, "deleted": 0, "total": 0}
+    else:
+        summary["staleness"] = staleness(
+            session, int(coll.id), int(version.snapshot_change_count), snapshot_ids(conn, version)
+        )
+    summary["staleness"]["changes_since"] = changes_since
     summary["building"] = (
         None if building is None else {"id": int(building.id), "state": building.state}
     )

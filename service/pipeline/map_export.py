@@ -29,7 +29,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from service.errors import InvalidInputError
-from service.pipeline.clusters import _names as group_names  # editors' names, one query
+from service.pipeline.clusters import group_names  # editors' names, one query
 from service.pipeline.live_index import Live, ProvisionalDoc
 from service.pipeline.queries import _check_t, _header
 from service.pipeline.query_view import QueryView, coordinate_scale

@@ -3,8 +3,11 @@ in the test, between requests)."""
 
 from __future__ import annotations
 
-from sqlalchemy import Engine
+from sqlalchemy import Engine, select
 
+from service.pipeline.index_summary import snapshot_ids, staleness
+from service.storage import index_store
+from service.storage.models import Collection
 from tests.build_factories import factory, run_until_finished, worker
 from tests.factories import TestClient, assert_error, auth, document, new_collection, put_document
 
@@ -40,6 +43,15 @@ def test_start_follow_and_read_the_index(
     done = client.get(f"{NEWS}/builds/{body['id']}", headers=auth(keys["read"])).json()
     assert (done["state"], done["version"], done["progress"]) == ("succeeded", 1, 1.0)
     assert done["timings"]["store"] >= 0 and done["statistics"]["documents"] == 5
+    fresh = client.get(f"{NEWS}/index", headers=auth(keys["read"])).json()["staleness"]
+    zero = {"added": 0, "changed": 0, "deleted": 0, "total": 0}
+    assert fresh == zero | {"changes_since": 0}
+    # The no-change answer is what the full count gives for the same snapshot.
+    with make() as session:
+        coll = session.scalars(select(Collection).where(Collection.name == "news")).one()
+        version = index_store.version_row(session.connection(), int(coll.active_version_id))
+        ids = snapshot_ids(session.connection(), version)
+        assert staleness(session, coll.id, int(version.snapshot_change_count), ids) == zero
 
     put_document(client, keys, "news", document(9, text="brand new harbour story"))
     put_document(client, keys, "news", document(0, text="harbour tide rewritten"))

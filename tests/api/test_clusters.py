@@ -290,3 +290,27 @@ def test_scopes_and_collection_deletion(
     with engine.connect() as conn:
         assert conn.execute(select(func.count()).select_from(NAMES)).scalar() == 0
     assert_error(client.get(URL, headers=auth(keys["read"])), 404, "not_found")
+
+
+def test_the_list_sent_again_follows_names_and_deletions(
+    client: TestClient, keys: dict[str, str], built: BuiltCollection
+) -> None:
+    first = client.get(URL, headers=auth(keys["read"]))
+    again = client.get(URL, headers=auth(keys["read"]))
+    assert first.status_code == again.status_code == 200
+    assert first.headers["content-type"] == "application/json"
+    assert again.content == first.content  # the same state answers the same bytes
+    groups = first.json()["clusters"]
+    g = groups[0]["id"]
+    assert rename(client, keys, g, "Harbour ledgers").status_code == 200
+    named = by_id(get(client, keys, URL))
+    assert named[g]["name"] == "Harbour ledgers"
+    assert rename(client, keys, g, None).status_code == 200
+    assert by_id(get(client, keys, URL))[g]["name"] is None
+    member = members(client, keys, g)[0]["id"]
+    gone = client.delete(f"/v1/collections/{C}/documents/{member}", headers=auth(keys["write"]))
+    assert gone.status_code in (200, 204), gone.text
+    after = by_id(get(client, keys, URL))
+    assert after[g]["size"] == groups[0]["size"] - 1
+    listed = {r["id"] for x in after.values() for r in x["representatives"]}
+    assert member not in listed

@@ -4,17 +4,22 @@ from __future__ import annotations
 
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, Query, Request, Response
 from fastapi.concurrency import run_in_threadpool
 
 from service.api.body import read_json
 from service.api.deps import READ, WRITE, settings
+from service.api.encoded_answers import EncodedAnswers
+from service.api.live import JSON_TYPE, json_response
 from service.errors import InvalidInputError
 from service.pipeline import clusters as use
 from service.pipeline.collections import check_name
 from service.pipeline.live_index import Live, LiveIndex
 
 router = APIRouter(prefix="/v1/collections/{collection}/clusters", tags=["clusters"])
+
+# The group list by live state and editor names (both read on every request).
+_group_lists = EncodedAnswers()
 
 NAME_BODY = {
     "content": {
@@ -46,7 +51,14 @@ def list_clusters(collection: str, request: Request) -> Any:
     undated documents) and how many members are provisional. ``ungrouped`` counts the
     documents in no group (isolated, or without terms). 409 before the first build."""
     live = _live(request, collection)
-    return use.list_groups(request.app.state.engine, live)
+    engine = request.app.state.engine
+    names = use.group_names(engine, live.view.version.collection_id)
+
+    def encode() -> bytes:
+        return bytes(json_response(use.list_groups(engine, live, names)).body)
+
+    key = tuple(sorted(names.items()))
+    return Response(_group_lists.get_or_make(live, "list", key, encode), media_type=JSON_TYPE)
 
 
 @router.get("/{group_id}", dependencies=[READ], summary="One group and its members")
