@@ -25,7 +25,7 @@ from service.config import Settings
 from service.pipeline.keys import KeyVerifier
 from service.pipeline.live_index import LiveIndex
 from service.pipeline.preload import preload_active_indexes
-from service.pipeline.queries import warm_search
+from service.pipeline.query_search import warm_search
 from service.pipeline.version_cache import VersionCache
 from service.storage.schema import require_current
 from service.storage.session import make_engine, make_session_factory

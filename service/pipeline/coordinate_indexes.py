@@ -11,7 +11,7 @@ was meant to speed up, which fell back to the exact scan meanwhile: at 100,000
 documents it was still building 16 s after the load under a 32-connection load.
 
 A version made before this (no stored index) or a query at another t is still served:
-see service.pipeline.queries._search.
+see service.pipeline.query_search.search_structure.
 """
 
 from __future__ import annotations

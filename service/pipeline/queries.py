@@ -10,7 +10,6 @@ upper bound that follows, and the cosine similarity of the TF-IDF vectors.
 
 from __future__ import annotations
 
-import threading
 from dataclasses import dataclass
 from typing import Any
 
@@ -20,16 +19,11 @@ from numpy.typing import NDArray
 from sqlalchemy import Engine, select
 
 from service.errors import InvalidInputError, NotFoundError
-from service.geometry.coordinate_index import HnswSearch, measure_recall
 from service.geometry.distances import distances_to, distances_to_point
-from service.geometry.nearest import ExactSearch
-from service.pipeline.coordinate_indexes import (
-    CANDIDATE_MARGIN,
-    INDEXED_MIN_VERTICES,
-    stored_index,
-)
+from service.pipeline.coordinate_indexes import CANDIDATE_MARGIN
 from service.pipeline.live_index import Live
 from service.pipeline.placement import Placement, place_row, text_row
+from service.pipeline.query_search import search_structure
 from service.pipeline.query_view import ISOLATED, NO_TERMS, QueryView, coordinate_scale
 from service.storage.models import Collection, Document
 from service.text.sparse_products import gather_entries, row_dots, row_entries
@@ -39,7 +33,7 @@ COLLECTIONS = Collection.__table__
 
 MAX_T = 1000.0
 
-__all__ = ["QueryPoint", "distance", "neighbors", "resolve", "similar", "warm_search"]
+__all__ = ["QueryPoint", "distance", "neighbors", "resolve", "similar"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -164,72 +158,6 @@ def point_coordinates(live: Live, point: QueryPoint, t: float) -> NDArray[np.flo
     return psi_x[1 : m + 1] * coordinate_scale(view.eigenvalues(c), t, m)
 
 
-class _BackgroundIndex:
-    """An HNSW index built in a thread; ``ready`` is None until it is usable. Only for a
-    version stored without its index (made before indexes were stored with versions)."""
-
-    def __init__(self, exact: ExactSearch) -> None:
-        self.ready: HnswSearch | None = None
-        self.recall: float | None = None
-        self.error: str | None = None
-        threading.Thread(
-            target=self._build, args=(exact,), name="coordinate-index", daemon=True
-        ).start()
-
-    def _build(self, exact: ExactSearch) -> None:
-        try:
-            # One thread: this process is serving queries meanwhile.
-            index = HnswSearch(exact.points, threads=1)
-            recall = measure_recall(index, exact, k=10, candidates=10 + CANDIDATE_MARGIN)
-            self.recall = round(recall, 4)
-            self.ready = index
-        except Exception as exc:
-            self.error = f"{type(exc).__name__}: {exc}"
-
-
-@dataclass(frozen=True)
-class _StoredIndex:
-    ready: HnswSearch
-    recall: float
-
-
-def _exact(view: QueryView, c: int, t: float) -> ExactSearch:
-    return view._cached(("search", c, t), lambda: ExactSearch(view.coordinates(c, t)))  # type: ignore[no-any-return]
-
-
-def _coordinate_index(view: QueryView, c: int, t: float) -> _StoredIndex | _BackgroundIndex:
-    """The version's stored index of component ``c``, else one built in the background."""
-    stored = stored_index(
-        view.version.arrays, c, t, int(view.members[c].size), view.n_coordinates(c)
-    )
-    if stored is not None:
-        return _StoredIndex(stored[0], round(stored[1], 4))
-    return _BackgroundIndex(_exact(view, c, t))
-
-
-def _search(view: QueryView, c: int, t: float) -> tuple[ExactSearch | HnswSearch, dict[str, Any]]:
-    """The search structure for component ``c`` at ``t``, and how it searches."""
-    if t != view.default_t:
-        lam, psi, _ = view.spectrum(c)
-        m = view.n_coordinates(c)
-        exact = ExactSearch(psi[:, 1 : m + 1] * coordinate_scale(lam, t, m)[None, :])
-        return exact, {"method": "exact"}
-    if view.members[c].size >= INDEXED_MIN_VERTICES:
-        holder = view._cached(("hnsw", c, t), lambda: _coordinate_index(view, c, t))
-        if holder.ready is not None:
-            return holder.ready, {"method": "hnsw", "recall": holder.recall}
-    return _exact(view, c, t), {"method": "exact"}
-
-
-def warm_search(view: QueryView) -> None:
-    """Ready the search structures of a freshly loaded version's large components (read
-    their stored indexes, or start building them in the background), so the first queries
-    after a publish do not wait for them. For `LiveIndex(on_load=...)`."""
-    for c, members in enumerate(view.members):
-        if members.size >= INDEXED_MIN_VERTICES:
-            _search(view, c, view.default_t)
-
-
 @dataclass(frozen=True)
 class _Candidate:
     d2: float
@@ -245,7 +173,7 @@ def _candidates(
     c = point.component
     assert c is not None
     y = point_coordinates(live, point, t)
-    search, how = _search(view, c, t)
+    search, how = search_structure(view, c, t)
     members = view.members[c]
     want = k + CANDIDATE_MARGIN
     while True:

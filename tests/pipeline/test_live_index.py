@@ -65,14 +65,14 @@ def test_on_load_runs_once_per_loaded_version(engine: Engine) -> None:
 def test_warm_search_starts_the_index_of_large_components(
     engine: Engine, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    from service.pipeline import queries
+    from service.pipeline import query_search
 
     built_collection(engine, "warm")
-    monkeypatch.setattr(queries, "INDEXED_MIN_VERTICES", 50)  # the test corpus is small
+    monkeypatch.setattr(query_search, "INDEXED_MIN_VERTICES", 50)  # the test corpus is small
     index = LiveIndex(
         engine,
         VersionCache(make_session_factory(engine), check_seconds=0),
-        on_load=queries.warm_search,
+        on_load=query_search.warm_search,
     )
     view = index.get("warm").view
     large = [c for c, m in enumerate(view.members) if m.size >= 50]
@@ -84,16 +84,16 @@ def test_warm_search_starts_the_index_of_large_components(
 def test_a_version_built_with_its_coordinate_index_is_searched_through_it(
     engine: Engine, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    from service.pipeline import coordinate_indexes, queries
+    from service.pipeline import coordinate_indexes, queries, query_search
 
     # Both the build and the queries take the small test corpus's components as large.
     monkeypatch.setattr(coordinate_indexes, "INDEXED_MIN_VERTICES", 50)
-    monkeypatch.setattr(queries, "INDEXED_MIN_VERTICES", 50)
+    monkeypatch.setattr(query_search, "INDEXED_MIN_VERTICES", 50)
     built_collection(engine, "stored")
     index = LiveIndex(
         engine,
         VersionCache(make_session_factory(engine), check_seconds=0),
-        on_load=queries.warm_search,
+        on_load=query_search.warm_search,
     )
     live = index.get("stored")
     view = live.view
@@ -101,7 +101,7 @@ def test_a_version_built_with_its_coordinate_index_is_searched_through_it(
     assert stats and all(s["vertices"] >= 50 for s in stats)
     for entry in stats:
         holder = view._cache[("hnsw", entry["component"], view.default_t)]
-        assert isinstance(holder, queries._StoredIndex)  # read back, not rebuilt
+        assert isinstance(holder, query_search.StoredIndex)  # read back, not rebuilt
         assert holder.recall == entry["recall"]
     c = stats[0]["component"]
     row = next(r for r, v in enumerate(view.vertex.tolist()) if v >= 0 and view.component[v] == c)
