@@ -8,7 +8,8 @@ from typing import Any
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
-from sqlalchemy.exc import DBAPIError, OperationalError
+from sqlalchemy.exc import DBAPIError, IntegrityError, InterfaceError, OperationalError
+from sqlalchemy.exc import TimeoutError as PoolTimeoutError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.routing import Match
 
@@ -83,11 +84,27 @@ async def _http(request: Request, exc: Exception) -> JSONResponse:
     return error_response(exc.status_code, code, str(exc.detail), None, headers)
 
 
-async def _database(_: Request, exc: Exception) -> JSONResponse:
-    log.warning("database error: %s", exc)
+async def _database_unavailable(_: Request, exc: Exception) -> JSONResponse:
+    """The connection failed, dropped or timed out: a retry may well succeed."""
+    log.warning("database unavailable: %s", exc)
     return error_response(
         503, "unavailable", "the database cannot be reached right now; try again shortly"
     )
+
+
+async def _database_conflict(_: Request, exc: Exception) -> JSONResponse:
+    """A constraint refused the write: a concurrent request changed the same rows first
+    (the use cases check the constraints they know before writing)."""
+    log.warning("database constraint: %s", exc)
+    return error_response(
+        409, "conflict", "a concurrent change to the same data came first; read it and try again"
+    )
+
+
+async def _database_other(_: Request, exc: Exception) -> JSONResponse:
+    """Any other driver error is a fault of ours, not an outage: logged as one."""
+    log.exception("database error", exc_info=exc)
+    return error_response(500, "internal", "an unexpected error occurred; it has been logged")
 
 
 async def _unexpected(_: Request, exc: Exception) -> JSONResponse:
@@ -99,6 +116,10 @@ def install_error_handlers(app: FastAPI) -> None:
     app.add_exception_handler(errors.TidemapError, _domain)
     app.add_exception_handler(RequestValidationError, _validation)
     app.add_exception_handler(StarletteHTTPException, _http)
-    app.add_exception_handler(OperationalError, _database)
-    app.add_exception_handler(DBAPIError, _database)
+    # Starlette picks the handler of the nearest class in the exception's MRO.
+    app.add_exception_handler(OperationalError, _database_unavailable)
+    app.add_exception_handler(InterfaceError, _database_unavailable)
+    app.add_exception_handler(PoolTimeoutError, _database_unavailable)
+    app.add_exception_handler(IntegrityError, _database_conflict)
+    app.add_exception_handler(DBAPIError, _database_other)
     app.add_exception_handler(Exception, _unexpected)

@@ -13,6 +13,14 @@ from typing import Any
 
 import pytest
 from sqlalchemy import Engine
+from sqlalchemy.exc import (
+    DataError,
+    IntegrityError,
+    InterfaceError,
+    OperationalError,
+    ProgrammingError,
+)
+from sqlalchemy.exc import TimeoutError as PoolTimeoutError
 
 from tests.factories import (
     TestClient,
@@ -381,3 +389,45 @@ def test_method_not_allowed_names_the_allowed_methods(small_client: TestClient) 
     response = small_client.delete(COLLS)
     assert_error(response, 405, "method_not_allowed")
     assert set(response.headers["allow"].replace(" ", "").split(",")) == {"GET", "POST"}
+
+
+def _failing_app(exc: Exception) -> TestClient:
+    from fastapi import FastAPI
+
+    from service.api.errors import install_error_handlers
+
+    app = FastAPI()
+    install_error_handlers(app)
+
+    @app.get("/fail")
+    def fail() -> None:
+        raise exc
+
+    return TestClient(app, raise_server_exceptions=False)
+
+
+@pytest.mark.parametrize(
+    ("exc", "status", "code"),
+    [
+        (
+            OperationalError("SELECT 1", {}, Exception("server closed the connection")),
+            503,
+            "unavailable",
+        ),
+        (
+            InterfaceError("SELECT 1", {}, Exception("connection already closed")),
+            503,
+            "unavailable",
+        ),
+        (PoolTimeoutError("QueuePool limit reached"), 503, "unavailable"),
+        (IntegrityError("INSERT", {}, Exception("UNIQUE constraint failed")), 409, "conflict"),
+        (ProgrammingError("SELEC", {}, Exception("syntax error")), 500, "internal"),
+        (DataError("INSERT", {}, Exception("value too long")), 500, "internal"),
+    ],
+)
+def test_driver_errors_map_to_what_they_mean(exc: Exception, status: int, code: str) -> None:
+    response = _failing_app(exc).get("/fail")
+    assert response.status_code == status
+    body = response.json()
+    assert body["error"]["code"] == code
+    assert "syntax" not in body["error"]["message"]  # driver text is logged, not sent
