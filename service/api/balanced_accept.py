@@ -142,9 +142,6 @@ class BalancedAcceptor:
         self._board.publish(self._count())
         self._later(PUBLISH_SECONDS, self._publish_periodically)
 
-    def _resume(self) -> None:
-        self._watch()
-
     def _ready(self) -> None:
         mine = self._count()
         self._board.publish(mine)
@@ -154,7 +151,7 @@ class BalancedAcceptor:
             # this worker does.
             self._deferred = True
             self._unwatch()
-            self._later(DEFER_SECONDS, self._resume)
+            self._later(DEFER_SECONDS, self._watch)
             return
         self._deferred = False
         try:
@@ -166,7 +163,7 @@ class BalancedAcceptor:
                 raise
             log.error("accept failed (%s); pausing new connections for 1 s", exc)
             self._unwatch()
-            self._later(_RESOURCE_PAUSE_SECONDS, self._resume)
+            self._later(_RESOURCE_PAUSE_SECONDS, self._watch)
             return
         self.accepted += 1
         self._hand_on(conn)

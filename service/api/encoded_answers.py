@@ -20,20 +20,20 @@ __all__ = ["EncodedAnswers"]
 
 
 class EncodedAnswers:
-    """Bytes by (Live, key): one entry per Live and answer kind, the latest key kept."""
+    """Bytes by (Live, key): one answer per Live, the latest key kept."""
 
     def __init__(self) -> None:
-        self._entries: weakref.WeakKeyDictionary[Live, dict[str, tuple[Hashable, bytes]]] = (
+        self._entries: weakref.WeakKeyDictionary[Live, tuple[Hashable, bytes]] = (
             weakref.WeakKeyDictionary()
         )
         self._lock = threading.Lock()
 
-    def get_or_make(self, live: Live, kind: str, key: Hashable, make: Callable[[], bytes]) -> bytes:
+    def get_or_make(self, live: Live, key: Hashable, make: Callable[[], bytes]) -> bytes:
         with self._lock:
-            found = self._entries.get(live, {}).get(kind)
+            found = self._entries.get(live)
         if found is not None and found[0] == key:
             return found[1]
         body = make()  # outside the lock: two requests may both make it, same bytes
         with self._lock:
-            self._entries.setdefault(live, {})[kind] = (key, body)
+            self._entries[live] = (key, body)
         return body

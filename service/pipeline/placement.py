@@ -100,13 +100,14 @@ def place_row(view: QueryView, row: sp.csr_matrix) -> Placement:
         )
     k = view.neighbors
     top_all, top_cos = _nearest_vertices(view, row, k)
-    top = top_all[top_cos > 0]
+    positive = top_cos > 0
+    top = top_all[positive]
     if top.size == 0:
         raise InvalidInputError(
             "the text shares no term with any indexed document, so it has no neighbours",
             code="no_neighbors",
         )
-    cos = top_cos[top_cos > 0]
+    cos = top_cos[positive]
     d = np.clip(1.0 - cos, 0.0, None)
     # Its bandwidth counts the k nearest whatever their cosine, as the graph does (a
     # neighbour at cosine <= 0 is at distance >= 1).

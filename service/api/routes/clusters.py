@@ -58,7 +58,7 @@ def list_clusters(collection: str, request: Request) -> Any:
         return bytes(json_response(use.list_groups(engine, live, names)).body)
 
     key = tuple(sorted(names.items()))
-    return Response(_group_lists.get_or_make(live, "list", key, encode), media_type=JSON_TYPE)
+    return Response(_group_lists.get_or_make(live, key, encode), media_type=JSON_TYPE)
 
 
 @router.get("/{group_id}", dependencies=[READ], summary="One group and its members")
